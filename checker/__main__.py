@@ -1,0 +1,5 @@
+"""`python -m checker` runs the command line."""
+
+from checker.cli import main_exit
+
+main_exit()

@@ -1,0 +1,145 @@
+"""The plain data passed between stages: an elaborated design, its per-case netlists,
+and the operating point the solver finds for each.
+
+Frozen dataclasses with no behaviour beyond lookups. All numbers are SI floats;
+temperatures are in kelvin.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Mapping
+
+from checker.errors import Location
+
+@dataclass(frozen=True)
+class Part:
+    """One fitted part, flat, with every value resolved to SI.
+
+    `pins` lists (pin, net) in the kind's pin order; two-terminal parts have
+    ("from", net) and ("to", net). `value` is the primary value (resistance,
+    source voltage or current, load current/power/resistance, ...) and `value_unit`
+    says which: "ohm", "V", "A", "W", "F", "H" (None when the kind has no primary
+    value). Bare words (`open`, `npn`, `nmos`) are in `flags`. A property written
+    `vf = 2.0 V at 10 mA` is `props["vf"] = 2.0` and `at["vf"] = 0.01`.
+    """
+
+    name: str
+    kind: str
+    pins: tuple[tuple[str, str], ...]
+    value: float | None = None
+    value_unit: str | None = None
+    flags: frozenset[str] = frozenset()
+    props: Mapping[str, float] = field(default_factory=dict)
+    at: Mapping[str, float] = field(default_factory=dict)
+    tags: frozenset[str] = frozenset()
+    location: Location | None = field(default=None, compare=False)
+
+    def net(self, pin: str) -> str:
+        """The net on `pin`; KeyError if the kind has no such pin."""
+        for name, net in self.pins:
+            if name == pin:
+                return net
+        raise KeyError(pin)
+
+    @property
+    def nets(self) -> tuple[str, ...]:
+        return tuple(net for _, net in self.pins)
+
+    @property
+    def two_terminal(self) -> bool:
+        return tuple(pin for pin, _ in self.pins) == ("from", "to")
+
+
+@dataclass(frozen=True)
+class Netlist:
+    """One case of one circuit: the fitted parts with the case's overrides applied."""
+
+    circuit: str
+    case: str
+    ambient: float  # K
+    ground: str
+    parts: tuple[Part, ...]
+    case_location: Location | None = field(default=None, compare=False)
+
+    @property
+    def nets(self) -> tuple[str, ...]:
+        """Every net, ground first, then in order of first appearance."""
+        seen = {self.ground: None}
+        for part in self.parts:
+            for net in part.nets:
+                seen.setdefault(net, None)
+        return tuple(seen)
+
+    def part(self, name: str) -> Part:
+        for part in self.parts:
+            if part.name == name:
+                return part
+        raise KeyError(name)
+
+
+@dataclass(frozen=True)
+class Design:
+    """An elaborated circuit file: its declared parts and one netlist per case.
+
+    `parts` are the declared (nominal) parts, including those some case marks
+    absent; `netlists` are in the order the cases are declared (one named
+    `default` when the file declares none).
+    """
+
+    name: str
+    title: str
+    path: str
+    ground: str
+    parts: tuple[Part, ...]
+    netlists: tuple[Netlist, ...]
+    location: Location | None = field(default=None, compare=False)
+
+    @property
+    def cases(self) -> tuple[str, ...]:
+        return tuple(n.case for n in self.netlists)
+
+    def netlist(self, case: str) -> Netlist:
+        for netlist in self.netlists:
+            if netlist.case == case:
+                return netlist
+        raise KeyError(case)
+
+
+@dataclass(frozen=True)
+class PartResult:
+    """A part at the operating point.
+
+    Two-terminal parts: `voltage` (from minus to), `current` (from -> to through
+    the part), `power` = voltage x current (positive: absorbed). Every part:
+    `pins`, the current flowing into each pin from its net, and `power`, the
+    power it absorbs (sum over pins of pin voltage x pin current).
+    """
+
+    power: float
+    pins: Mapping[str, float]
+    voltage: float | None = None
+    current: float | None = None
+
+
+@dataclass(frozen=True)
+class OperatingPoint:
+    """The DC solution of one netlist.
+
+    `strategy` is how it was reached: "linear" (one direct solve), "newton",
+    "gmin stepping" or "source stepping".
+    """
+
+    netlist: Netlist
+    nets: Mapping[str, float]
+    parts: Mapping[str, PartResult]
+    iterations: int = 1
+    strategy: str = "linear"
+
+    @property
+    def case(self) -> str:
+        return self.netlist.case
+
+    @property
+    def ambient(self) -> float:
+        return self.netlist.ambient

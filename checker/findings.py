@@ -1,0 +1,140 @@
+"""The result of a check as plain data: what every report renders and the exit code is decided from.
+
+The engine (`checker.limits`) builds these; renderers in `checker.report` only format
+them. All numbers are SI floats (temperatures in kelvin).
+"""
+
+from __future__ import annotations
+
+import datetime
+from dataclasses import dataclass, field
+
+from checker.design import OperatingPoint
+from checker.errors import Location
+
+
+@dataclass(frozen=True)
+class Limit:
+    """One limit as written in a limits file (or a built-in pack)."""
+
+    id: str
+    about: str
+    check: str
+    severity: str = "error"  # "error" | "warning"
+    each: str | None = None  # a part kind, or "tag:WORD"
+    where: str | None = None
+    cases: tuple[str, ...] | None = None  # None: every case
+    source: str = ""  # the limits file, or "pack:NAME"
+    location: Location | None = field(default=None, compare=False)  # the limit's `id:` line
+
+
+@dataclass(frozen=True)
+class Waiver:
+    """An accepted failure of one limit, optionally narrowed to a part and a case, until a date."""
+
+    limit: str
+    reason: str
+    until: datetime.date
+    part: str | None = None
+    case: str | None = None
+    location: Location | None = field(default=None, compare=False)
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """One limit evaluated in one case on one item.
+
+    `value` and `bound` are the two sides of the comparison that decided the margin
+    (for `x in lo .. hi`, x and the nearer end). `margin` is positive when the
+    limit holds; `relative` is the margin over the limit's scale (|bound|, or the
+    value's magnitude when the bound is zero). `unit` is the display symbol of the
+    three numbers; `absolute` marks temperatures to show in °C.
+    """
+
+    case: str
+    value: float
+    bound: float
+    margin: float
+    relative: float
+    unit: str = ""
+    absolute: bool = False
+    holds: bool = True
+    corner: str = ""  # a tolerance corner or sample, when tolerances are analysed
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One limit on one circuit and one item (the part, for `each` limits), over its cases.
+
+    `status`: "pass", "fail" (an error-severity limit fails), "warn" (a
+    warning-severity limit fails) or "waived" (it fails under a valid waiver).
+    With `--base`, `change` is "new", "fixed" or "unchanged" and `base_margin` the
+    worst margin on the base revision.
+    """
+
+    limit: Limit
+    circuit: str
+    item: str | None
+    outcomes: tuple[Outcome, ...]
+    status: str
+    waiver: Waiver | None = None
+    item_location: Location | None = field(default=None, compare=False)
+    change: str | None = None
+    base_margin: float | None = None
+
+    @property
+    def worst(self) -> Outcome:
+        return min(self.outcomes, key=lambda outcome: outcome.margin)
+
+    @property
+    def key(self) -> tuple[str, str, str]:
+        """Identity across revisions: limit id, circuit, item."""
+        return (self.limit.id, self.circuit, self.item or "")
+
+
+@dataclass(frozen=True)
+class WaiverNote:
+    """A waiver that has expired (an error) or matched no failure (a warning)."""
+
+    waiver: Waiver
+    problem: str  # "expired" | "unused"
+
+
+@dataclass(frozen=True)
+class CircuitResult:
+    """One circuit's operating points, one per case in declaration order."""
+
+    name: str
+    title: str
+    path: str
+    operating_points: tuple[OperatingPoint, ...]
+
+
+@dataclass(frozen=True)
+class Findings:
+    """Everything one `nodegate check` run found."""
+
+    findings: tuple[Finding, ...]
+    circuits: tuple[CircuitResult, ...]
+    waiver_notes: tuple[WaiverNote, ...] = ()
+    fixed: tuple[Finding, ...] = ()  # with --base: failed on the base, hold now or are gone
+    base_ref: str | None = None
+
+    def with_status(self, status: str) -> tuple[Finding, ...]:
+        return tuple(f for f in self.findings if f.status == status)
+
+    @property
+    def failures(self) -> tuple[Finding, ...]:
+        return self.with_status("fail")
+
+    @property
+    def warnings(self) -> tuple[Finding, ...]:
+        return self.with_status("warn")
+
+    @property
+    def expired_waivers(self) -> tuple[WaiverNote, ...]:
+        return tuple(n for n in self.waiver_notes if n.problem == "expired")
+
+    @property
+    def unused_waivers(self) -> tuple[WaiverNote, ...]:
+        return tuple(n for n in self.waiver_notes if n.problem == "unused")
