@@ -7,6 +7,7 @@ with `render` and turns them into exit code 2. Anything else escaping is a bug
 
 from __future__ import annotations
 
+import difflib
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -91,3 +92,9 @@ def render(error: NodegateError) -> str:
             lines.append("  " + " " * max(loc.column - 1, 0) + "^")
     lines.extend(f"  note: {note}" for note in error.notes)
     return "\n".join(lines)
+
+
+def did_you_mean(word: str, choices) -> str:
+    """` (did you mean `x`?)` for the closest of `choices` to a mistyped `word`, else ""."""
+    found = difflib.get_close_matches(word, [str(c) for c in choices], n=1, cutoff=0.6)
+    return f" (did you mean `{found[0]}`?)" if found else ""

@@ -176,3 +176,4 @@ def parse_unit(text: str) -> tuple[float, Dim, bool]:
         dim = dim_mul(dim, dim_pow(factor_dim, exponent))
         absolute = factor_absolute
     return scale, dim, absolute
+

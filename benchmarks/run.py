@@ -1,0 +1,100 @@
+"""Speed figures for the solver, printed one per line with units; nothing is asserted.
+
+Run from the repository root: `python benchmarks/run.py`. Each benchmark is one
+function returning (label, value, unit) lines, so new ones (nonlinear circuits, ...)
+are added to BENCHMARKS.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+from pathlib import Path
+from typing import Callable, Iterator
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.linalg import splu
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+from checker.design import Netlist, Part  # noqa: E402
+from checker.solver import solve, solve_cases  # noqa: E402
+
+Figure = tuple[str, float, str]
+R_GRID = 100.0  # Ω per grid resistor
+V_SOURCE = 1.0  # V across the grid's opposite corners
+
+
+def _net(side: int, row: int, col: int) -> str:
+    return f"g{row * side + col}"
+
+
+def grid_netlist(side: int, volts: float = V_SOURCE, case: str = "default") -> Netlist:
+    """A side x side resistor mesh, grounded at one corner, driven from the opposite corner."""
+    parts = [Part(f"RH{r}_{c}", "resistor", (("from", _net(side, r, c)), ("to", _net(side, r, c + 1))),
+                  R_GRID, "ohm") for r in range(side) for c in range(side - 1)]
+    parts += [Part(f"RV{r}_{c}", "resistor", (("from", _net(side, r, c)), ("to", _net(side, r + 1, c))),
+                   R_GRID, "ohm") for r in range(side - 1) for c in range(side)]
+    parts.append(Part("V1", "source", (("from", _net(side, side - 1, side - 1)), ("to", _net(side, 0, 0))),
+                      volts, "V"))
+    return Netlist("grid", case, 298.15, _net(side, 0, 0), tuple(parts))
+
+
+def grid_matrix(side: int) -> tuple[sp.csc_matrix, np.ndarray]:
+    """The same grid's nodal matrix and source vector, built directly with numpy."""
+    ids = np.arange(side * side).reshape(side, side)
+    a = np.concatenate([ids[:, :-1].ravel(), ids[:-1, :].ravel()])
+    b = np.concatenate([ids[:, 1:].ravel(), ids[1:, :].ravel()])
+    g = np.full(a.size, 1.0 / R_GRID)
+    n = side * side
+    branch = n  # the source's current, one extra unknown
+    top = n - 1
+    rows = np.concatenate([a, b, a, b, [top, branch]])
+    cols = np.concatenate([a, b, b, a, [branch, top]])
+    values = np.concatenate([g, g, -g, -g, [1.0, 1.0]])
+    full = sp.csc_matrix((values, (rows, cols)), shape=(n + 1, n + 1))
+    keep = np.arange(1, n + 1)  # drop the grounded corner, node 0
+    rhs = np.zeros(n)
+    rhs[-1] = V_SOURCE
+    return full[keep][:, keep].tocsc(), rhs
+
+
+def _seconds(action: Callable[[], object]) -> float:
+    start = time.perf_counter()
+    action()
+    return time.perf_counter() - start
+
+
+def bench_large_grid(side: int = 500) -> Iterator[Figure]:
+    """solve() on a side^2-net grid against scipy's own factor-and-solve of the same matrix."""
+    netlist = grid_netlist(side)
+    matrix, rhs = grid_matrix(side)
+    ours = _seconds(lambda: solve(netlist))
+    direct = _seconds(lambda: splu(matrix).solve(rhs))
+    yield f"solve() on a {side}x{side} resistor grid ({side * side:,} nets)", ours, "s"
+    yield f"scipy splu factor+solve of the same matrix ({matrix.shape[0]:,} unknowns)", direct, "s"
+    yield "solve() overhead ratio over splu alone", ours / direct, "x"
+
+
+def bench_cases(side: int = 100, count: int = 100) -> Iterator[Figure]:
+    """Many cases that only change the source: one factorisation shared by all."""
+    netlists = [grid_netlist(side, volts=1.0 + k / count, case=f"c{k}") for k in range(count)]
+    shared = _seconds(lambda: solve_cases(netlists))
+    alone = _seconds(lambda: [solve(netlist) for netlist in netlists])
+    yield f"solve_cases(): {count} source-only cases on a {side}x{side} grid", shared, "s"
+    yield f"solve() one by one: the same {count} cases", alone, "s"
+    yield "time per case with a shared factorisation", 1e3 * shared / count, "ms"
+
+
+BENCHMARKS: list[Callable[[], Iterator[Figure]]] = [bench_large_grid, bench_cases]
+
+
+def main() -> None:
+    for benchmark in BENCHMARKS:
+        for label, value, unit in benchmark():
+            print(f"{label}: {value:.3g} {unit}", flush=True)
+
+
+if __name__ == "__main__":
+    main()

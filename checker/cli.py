@@ -1,0 +1,123 @@
+"""The command line: argument parsing and exit codes, nothing else.
+
+Exit codes (OUTPUTS.md): 0 every error-severity limit holds, 1 a limit fails or a
+waiver expired, 2 the input cannot be checked, 3 an internal error (a bug).
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+from typing import Sequence
+
+from checker import __version__
+from checker.errors import NodegateError, render
+
+EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_BUG = 0, 1, 2, 3
+REPORT_FORMATS = ("md", "html", "json", "junit", "sarif", "annotations")
+BUG_REPORT = "please report it with the command and the input files to the nodegate maintainers"
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that raises instead of exiting, so `main` alone decides the exit code."""
+
+    def error(self, message: str) -> None:  # type: ignore[override]
+        raise _UsageError(f"{self.prog}: error: {message}\n{self.format_usage().rstrip()}")
+
+
+class _UsageError(Exception):
+    pass
+
+
+def _formats(text: str) -> tuple[str, ...]:
+    chosen = tuple(item.strip() for item in text.split(",") if item.strip())
+    unknown = [item for item in chosen if item not in REPORT_FORMATS]
+    if unknown or not chosen:
+        raise argparse.ArgumentTypeError(
+            f"unknown format {', '.join(unknown) or '(none)'}; choose from {','.join(REPORT_FORMATS)}")
+    return chosen
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="nodegate", description=(
+        "Checks the DC operating points of circuit designs against the limits a hardware team writes."))
+    parser.add_argument("--version", action="version", version=f"nodegate {__version__}")
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    check = commands.add_parser("check", help="solve every circuit in every case, evaluate the limits, write reports")
+    check.add_argument("directory", nargs="?", default=".", help="the hardware repository (default: .)")
+    check.add_argument("--config", type=Path, help="the configuration file (default: DIR/nodegate.yaml)")
+    check.add_argument("--base", metavar="GIT_REF", help="compare against the same check on this git revision")
+    check.add_argument("--fail-on", choices=("new", "any"), default="any",
+                       help="with --base: fail on any failing limit (default) or only on those this change introduces")
+    check.add_argument("--format", type=_formats, default=None, metavar="LIST",
+                       help=f"reports to write, comma-separated from {','.join(REPORT_FORMATS)} "
+                            "(default: md,html,json; `annotations` prints CI workflow commands)")
+    check.add_argument("--out", type=Path, help="folder for the reports (default: the configuration's report paths)")
+    check.add_argument("--strict", action="store_true", help="warnings and unused waivers fail too")
+
+    solve = commands.add_parser("solve", help="print the operating point of a circuit file")
+    solve.add_argument("file", type=Path, help="a .circuit file")
+    solve.add_argument("--case", help="only this case")
+    solve.add_argument("--format", choices=("table", "json"), default="table")
+
+    init = commands.add_parser("init", help="write a starter configuration, example circuit, limits and CI workflow")
+    init.add_argument("directory", nargs="?", default=".", type=Path)
+
+    explain = commands.add_parser("explain", help="show one limit: its check, each case's value and margin")
+    explain.add_argument("limit_id", metavar="LIMIT_ID")
+    explain.add_argument("--config", type=Path, default=Path("nodegate.yaml"))
+
+    fmt = commands.add_parser("fmt", help="rewrite .circuit files in the canonical layout")
+    fmt.add_argument("files", nargs="+", type=Path, metavar="FILE")
+    fmt.add_argument("--check", action="store_true", help="change nothing; exit 1 if a file would change")
+    return parser
+
+
+def _dispatch(args: argparse.Namespace) -> int:
+    # Imported here so `nodegate --help` stays fast and a broken stage cannot break the others.
+    if args.command == "check":
+        from checker.commands import check
+        return check.run(args)
+    if args.command == "solve":
+        from checker.commands import solve
+        return solve.run(args)
+    if args.command == "init":
+        from checker.commands import init
+        return init.run(args)
+    if args.command == "explain":
+        from checker.commands import explain
+        return explain.run(args)
+    if args.command == "fmt":
+        from checker.commands import fmt
+        return fmt.run(args)
+    build_parser().print_help()
+    return EXIT_INPUT
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run one command; return its exit code. The only place that turns errors into codes."""
+    try:
+        args = build_parser().parse_args(argv)
+        return _dispatch(args)
+    except _UsageError as usage:
+        print(usage, file=sys.stderr)
+        return EXIT_INPUT
+    except SystemExit as done:  # --help and --version
+        return done.code if isinstance(done.code, int) else EXIT_OK
+    except NodegateError as error:
+        print(render(error), file=sys.stderr)
+        return EXIT_INPUT
+    except KeyboardInterrupt:
+        print("nodegate: interrupted", file=sys.stderr)
+        return 130
+    except Exception as bug:  # noqa: BLE001 - the last line of defence: never a traceback
+        print(f"nodegate: internal error ({type(bug).__name__}: {bug}); this is a bug, {BUG_REPORT}.",
+              file=sys.stderr)
+        return EXIT_BUG
+
+
+def main_exit() -> None:
+    """Console-script entry point."""
+    sys.exit(main())

@@ -1,0 +1,1 @@
+"""One module per command; each has `run(args) -> exit code` and wires stages together."""

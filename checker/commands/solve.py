@@ -1,0 +1,26 @@
+"""`nodegate solve FILE [--case NAME] [--format table|json]`: print operating points."""
+
+from __future__ import annotations
+
+import argparse
+
+from checker.errors import DesignError, did_you_mean
+from checker.language import load_design
+from checker.report import render_solve_json, render_solve_table
+from checker.solver import solve_cases
+
+
+def run(args: argparse.Namespace) -> int:
+    design = load_design(args.file)
+    netlists = design.netlists
+    if args.case is not None:
+        netlists = tuple(n for n in netlists if n.case == args.case)
+        if not netlists:
+            raise DesignError(f"`{design.path}` has no case `{args.case}`{did_you_mean(args.case, design.cases)}; "
+                              f"its cases are {', '.join(design.cases)}")
+    points = solve_cases(netlists)
+    if args.format == "json":
+        print(render_solve_json(design.name, points))
+    else:
+        print(render_solve_table(points))
+    return 0

@@ -1,0 +1,41 @@
+"""Part kinds the solver can stamp, one class per kind, registered by kind name.
+
+A class in `DEVICES` stands for all the parts of its kind in one netlist (see
+`checker.devices.base.Device`), so stamps are built with numpy over the group.
+
+How to add a kind
+-----------------
+1. Write a class in the module of its family (`passives`, `sources`, ...), with
+   `kind = "name"` and `pins` (the kind table's pin order; ("from", "to") by default).
+2. In `__init__(parts, nodes, first_branch, ambient)` (call `super().__init__` first)
+   turn the parts' values into arrays and reject bad ones with `reject(...)`, which
+   raises `DesignError` at the part. Extra unknowns (branch currents) are numbered
+   from `first_branch`; set `self.n_branches` to how many you use.
+3. Implement:
+   - `edges()`: the DC paths between pins (`EdgeKind.CONDUCTIVE`, `VOLTAGE` or
+     `CURRENT`), used to diagnose floating nets, source loops and cut sets before
+     any matrix is factorised. A pin with no DC path (a gate) gets no edge.
+   - `matrix()` / `sources()`: the constant part of the stamp (coordinate triplets
+     and right-hand-side entries). Row/column -1 is ground and is dropped.
+   - `pin_currents(x)`: current into each pin, shape (parts, pins).
+   - `describe(part)` if "the <kind> <name>" does not say it well.
+   A linear two-terminal kind only needs `elements()` on `LinearTwoTerminal`.
+4. Nonlinear kinds set `nonlinear = True` and implement `evaluate(x)`, returning a
+   `NonlinearStamp` of residual currents leaving each net into the device and their
+   derivatives for the whole group in one numpy pass; `limit(x_new, x_old)` may
+   shorten a Newton step (junction-voltage limiting). `x` always carries a trailing
+   0.0 so that index -1 reads ground.
+5. Register the class in `DEVICES` below and add a test file under tests/unit/solver/.
+"""
+
+from __future__ import annotations
+
+from checker.devices.base import Device
+from checker.devices.passives import Capacitor, Inductor, Resistor, Switch
+from checker.devices.sources import Load, Source
+
+DEVICES: dict[str, type[Device]] = {
+    cls.kind: cls for cls in (Resistor, Capacitor, Inductor, Switch, Source, Load)
+}
+
+__all__ = ["DEVICES", "Device"]

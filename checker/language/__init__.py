@@ -1,0 +1,45 @@
+"""The circuit language: `.circuit` text to a `checker.design.Design`.
+
+Parsing (`parser`, grammar in `circuit.lark`), statements (`syntax`), `use` and
+file bounds (`files`), expressions with units (`expressions`), parts checked
+against the kind table (`parts`), blocks (`elaborate`) and cases (`cases`).
+Every input problem is a `checker.errors.NodegateError` with a Location.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from checker.design import Design
+from checker.language.elaborate import elaborate
+from checker.language.files import MAX_FILE_BYTES, Loader, read_source
+from checker.language.source import Source
+from checker.errors import DesignError
+
+__all__ = ["load_design", "parse_design"]
+
+
+def load_design(path: str | Path, root: str | Path | None = None) -> Design:
+    """Read and elaborate a top-level `.circuit` file.
+
+    `use` paths are relative to the including file and must resolve inside `root`
+    (default: the folder of `path`).
+    """
+    path = Path(path)
+    source = read_source(path, str(path), None)
+    return _design(source, path, root)
+
+
+def parse_design(text: str, path: str = "<text>", root: str | Path | None = None) -> Design:
+    """Elaborate circuit text held in memory; `path` is shown in messages and anchors `use`."""
+    if len(text.encode("utf-8", errors="surrogatepass")) > MAX_FILE_BYTES:
+        raise DesignError(f"`{path}` is larger than {MAX_FILE_BYTES // (1024 * 1024)} MiB")
+    source = Source(path, text.removeprefix("\ufeff").replace("\r\n", "\n"))
+    real = Path(path) if Path(path).is_file() else None
+    return _design(source, real, root)
+
+
+def _design(source: Source, real: Path | None, root: str | Path | None) -> Design:
+    if root is None:
+        root = Path(source.path).parent
+    return elaborate(Loader(Path(root)).top(source, real), source)

@@ -1,0 +1,129 @@
+"""Cases: one Netlist per `case`, the declared parts with the case's overrides applied.
+
+`NAME = VALUE` sets a part's primary value or flag word, `NAME.prop = VALUE` a
+property (hierarchical: `DIV.RA.tol`), `NAME = absent` removes a part (or every
+part of a block instance), `ambient = T` the temperature (default 25 degC).
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+from checker.design import Netlist, Part
+from checker.errors import DesignError, UnitError
+from checker.kinds import KINDS, nearest
+from checker.language.expressions import Scope, dim_text, evaluate
+from checker.language.parts import check_complete, primary_value, property_value
+from checker.language.syntax import Case, Override, declared
+from checker.units import KELVIN, ZERO_CELSIUS
+
+DEFAULT_AMBIENT = ZERO_CELSIUS + 25.0  # K: the reference temperature of LANGUAGE.md
+MAX_CASES = 1000
+
+
+def netlists(circuit: str, ground: str, parts: list[Part], cases: list[Case], scope: Scope,
+             instances: set[str]) -> tuple[Netlist, ...]:
+    """One Netlist per case in declaration order, or one named `default`."""
+    if not cases:
+        return (Netlist(circuit, "default", DEFAULT_AMBIENT, ground, tuple(parts)),)
+    if len(cases) > MAX_CASES:
+        raise DesignError(f"more than {MAX_CASES} cases", cases[MAX_CASES].location)
+    seen: dict[str, int] = {}
+    result = []
+    for case in cases:
+        if case.name.text in seen:
+            raise DesignError(f"case `{case.name.text}` is already declared at line {seen[case.name.text]}",
+                              case.name.location)
+        declared(case.name, "case")
+        seen[case.name.text] = case.name.location.line
+        result.append(_Case(circuit, ground, parts, scope, instances).apply(case))
+    return tuple(result)
+
+
+class _Case:
+    """The parts of one case while its overrides are applied, in declaration order."""
+
+    def __init__(self, circuit: str, ground: str, parts: list[Part], scope: Scope, instances: set[str]):
+        self.circuit, self.ground, self.scope, self.instances = circuit, ground, scope, instances
+        self.parts: dict[str, Part | None] = {part.name: part for part in parts}
+        self.ambient = DEFAULT_AMBIENT
+
+    def apply(self, case: Case) -> Netlist:
+        done: set[str] = set()
+        for override in case.overrides:
+            key = ".".join(n.text for n in override.target) or "ambient"
+            if key in done:
+                raise DesignError(f"`{key}` is set twice in case `{case.name.text}`", override.location)
+            done.add(key)
+            self.override(override)
+        parts = tuple(p for p in self.parts.values() if p is not None)
+        return Netlist(self.circuit, case.name.text, self.ambient, self.ground, parts, case.name.location)
+
+    def override(self, override: Override) -> None:
+        if not override.target:
+            self.ambient = self.temperature(override)
+            return
+        path = ".".join(n.text for n in override.target)
+        if override.absent:
+            self.remove(path, override)
+        elif path in self.parts:
+            self.set_value(path, override)
+        elif len(override.target) > 1 and ".".join(path.split(".")[:-1]) in self.parts:
+            self.set_property(path.rsplit(".", 1)[0], override)
+        else:
+            raise self.unknown(path, override)
+
+    def part(self, name: str, override: Override) -> Part:
+        part = self.parts[name]
+        if part is None:
+            raise DesignError(f"`{name}` is absent in this case", override.location)
+        return part
+
+    def temperature(self, override: Override) -> float:
+        value = evaluate(override.value, self.scope)
+        if value.dim != KELVIN:
+            raise UnitError(f"ambient is a temperature (degC or K); got {dim_text(value)}", override.value.location)
+        if value.value <= 0:
+            raise DesignError("ambient is below absolute zero", override.value.location)
+        return value.value
+
+    def remove(self, path: str, override: Override) -> None:
+        inside = [name for name in self.parts if name.startswith(path + ".")] if path in self.instances else []
+        if path not in self.parts and not inside:
+            raise self.unknown(path, override)
+        for name in [path] if path in self.parts else inside:
+            self.parts[name] = None
+
+    def set_value(self, name: str, override: Override) -> None:
+        part = self.part(name, override)
+        kind = KINDS[part.kind]
+        if override.at is not None:
+            raise DesignError("a test condition (`at`) belongs to a property, as in `D1.vf = 2 V at 10 mA`",
+                              override.at.location)
+        word = override.value.bare_word()
+        if word is not None and word in kind.flags:
+            self.parts[name] = replace(part, flags=frozenset({word}))
+            return
+        value, unit = primary_value(kind, override.value, self.scope)
+        self.parts[name] = replace(part, value=value, value_unit=unit)
+
+    def set_property(self, name: str, override: Override) -> None:
+        part = self.part(name, override)
+        kind, key = KINDS[part.kind], override.target[-1]
+        if key.text == "tag":
+            raise DesignError("tags are fixed by the part; a case cannot change them", key.location)
+        value, condition = property_value(kind, key, override.value, override.at, self.scope)
+        at = {k: v for k, v in part.at.items() if k != key.text}
+        if condition is not None:
+            at[key.text] = condition
+        updated = replace(part, props={**part.props, key.text: value}, at=at)
+        check_complete(kind, updated, override.location)
+        self.parts[name] = updated
+
+    def unknown(self, path: str, override: Override) -> DesignError:
+        location = override.target[0].location
+        if path in self.instances:
+            return DesignError(f"`{path}` is a block instance; a case sets the parts inside it "
+                               f"(`{path}.PART = VALUE`) or removes it (`{path} = absent`)", location)
+        hint = nearest(path, self.parts)
+        return DesignError(f"no part `{path}`" + (f"; did you mean `{hint}`?" if hint else ""), location)

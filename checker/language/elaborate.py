@@ -1,0 +1,176 @@
+"""Statements to a Design: the header, lets, blocks flattened into parts, then the cases.
+
+Lets are evaluated in order (each sees the earlier ones); parts and blocks may
+appear in any order. A block instance `DIV (top: vbat, ...)` becomes parts
+`DIV.RA`, ... with internal nets `DIV.<net>`; the ground net is global.
+"""
+
+from __future__ import annotations
+
+from collections import ChainMap
+
+from checker.design import Design, Part
+from checker.errors import DesignError, Location, NodegateError, UnitError
+from checker.kinds import KINDS
+from checker.language.cases import netlists
+from checker.language.expressions import Scope, dim_text, evaluate
+from checker.language.parts import build_part, check_form, ordered_nets, unknown_kind
+from checker.language.source import Source
+from checker.language.syntax import (
+    Block, Case, Circuit, Ground, Let, Name, PartStatement, Statement, declared,
+)
+from checker.units import Quantity
+
+MAX_BLOCK_DEPTH = 16  # blocks inside blocks
+MAX_PARTS = 100_000  # after every block is expanded
+
+
+
+def elaborate(found: list[Statement], top: Source) -> Design:
+    """The Design described by the statements of a top-level file (libraries spliced in)."""
+    circuit, ground = _header(found, top)
+    lets = _lets([s for s in found if isinstance(s, Let)], {})
+    blocks = _blocks([s for s in found if isinstance(s, Block)])
+    expander = _Expander(blocks, ground.net.text, lets)
+    parts = expander.expand([s for s in found if isinstance(s, PartStatement)], "", {}, lets, ())
+    cases = [s for s in found if isinstance(s, Case)]
+    return Design(
+        name=circuit.name.text, title=circuit.title or circuit.name.text, path=top.path,
+        ground=ground.net.text, parts=tuple(parts),
+        netlists=netlists(circuit.name.text, ground.net.text, parts, cases, lets, expander.instances),
+        location=circuit.name.location)
+
+
+def _header(found: list[Statement], top: Source) -> tuple[Circuit, Ground]:
+    circuits = [s for s in found if isinstance(s, Circuit)]
+    grounds = [s for s in found if isinstance(s, Ground)]
+    if not circuits:
+        raise DesignError("a circuit file starts with `circuit NAME`", top.at_position(1, 1))
+    if found[0] is not circuits[0]:
+        raise DesignError("`circuit` must be the first statement of the file", circuits[0].location)
+    if len(circuits) > 1:
+        raise DesignError("a file describes one circuit; `circuit` is given again", circuits[1].location)
+    if not grounds:
+        raise DesignError("no `ground NET` statement: name the 0 V reference net", circuits[0].location)
+    if len(grounds) > 1:
+        raise DesignError("`ground` is given again; a circuit has one ground net", grounds[1].location)
+    declared(circuits[0].name, "circuit")
+    declared(grounds[0].net, "net")
+    return circuits[0], grounds[0]
+
+
+def _lets(lets: list[Let], outer: Scope, given: dict[str, tuple[Quantity, Name]] | None = None) -> Scope:
+    """Let values in order; `given` replaces defaults (an instance's properties), same dimension."""
+    local: dict[str, Quantity] = {}
+    scope = ChainMap(local, outer)
+    for let in lets:
+        name = declared(let.name, "value")
+        if name in local:
+            raise DesignError(f"`{name}` is already defined", let.name.location)
+        local[name] = evaluate(let.value, scope)
+        if given and name in given:
+            local[name] = _same_dimension(local[name], *given[name])
+    return scope
+
+
+def _same_dimension(default: Quantity, value: Quantity, key: Name) -> Quantity:
+    if (default.dim, default.absolute) != (value.dim, value.absolute):
+        raise UnitError(f"`{key.text}` is {dim_text(default)} in the block; got {dim_text(value)}",
+                        key.location)
+    return value
+
+
+def _blocks(blocks: list[Block]) -> dict[str, Block]:
+    table: dict[str, Block] = {}
+    for block in blocks:
+        name = declared(block.name, "block")
+        if name in table:
+            raise DesignError(f"block `{name}` is already defined at line {table[name].name.location.line}",
+                              block.name.location)
+        for port in block.ports:
+            declared(port, "port")
+        table[name] = block
+    return table
+
+
+class _Expander:
+    """Flattens part statements, expanding block instances recursively with prefixed names."""
+
+    def __init__(self, blocks: dict[str, Block], ground: str, lets: Scope):
+        self.blocks, self.ground, self.lets = blocks, ground, lets
+        self.count = 0
+        self.instances: set[str] = set()
+
+    def expand(self, found: list[PartStatement], prefix: str, ports: dict[str, str],
+               scope: Scope, stack: tuple[str, ...]) -> list[Part]:
+        names: dict[str, Location] = {}
+        parts: list[Part] = []
+        for statement in found:
+            name = declared(statement.name, "part")
+            if name in names:
+                raise DesignError(f"`{name}` is already declared at line {names[name].line}",
+                                  statement.name.location)
+            names[name] = statement.name.location
+            if statement.kind.text in self.blocks:
+                parts.extend(self.instance(statement, prefix, ports, scope, stack))
+            elif statement.kind.text in KINDS:
+                kind = KINDS[statement.kind.text]
+                check_form(statement, kind)
+                pins = self.nets(ordered_nets(statement, kind.pins, f"a {kind.name}"), prefix, ports)
+                parts.append(build_part(statement, kind, prefix + name, pins, scope))
+                self.counted(statement)
+            else:
+                raise unknown_kind(statement.kind, self.blocks)
+        return parts
+
+    def nets(self, names: tuple[Name, ...], prefix: str, ports: dict[str, str]) -> tuple[str, ...]:
+        """Net names as seen from the top: a port's outer net, the global ground, or prefixed."""
+        return tuple(ports.get(n.text) or (self.ground if n.text == self.ground else prefix + declared(n, "net"))
+                     for n in names)
+
+    def counted(self, statement: PartStatement) -> None:
+        self.count += 1
+        if self.count > MAX_PARTS:
+            raise DesignError(f"more than {MAX_PARTS} parts once blocks are expanded", statement.name.location)
+
+    def instance(self, statement: PartStatement, prefix: str, ports: dict[str, str], scope: Scope,
+                 stack: tuple[str, ...]) -> list[Part]:
+        """The parts of a block instance; the block's lets see its parameters and the file's lets."""
+        block = self.blocks[statement.kind.text]
+        if block.name.text in stack:
+            chain = " -> ".join((*stack[stack.index(block.name.text):], block.name.text))
+            raise DesignError(f"block `{block.name.text}` uses itself: {chain}", statement.kind.location)
+        if len(stack) >= MAX_BLOCK_DEPTH:
+            raise DesignError(f"blocks nested more than {MAX_BLOCK_DEPTH} deep", statement.kind.location)
+        if statement.two_terminal:
+            raise DesignError(f"a block instance is written `{block.name.text} NAME (PORT: NET, ...)`",
+                              statement.kind.location)
+        port_names = tuple(p.text for p in block.ports)
+        outer = self.nets(ordered_nets(statement, port_names, f"block `{block.name.text}`"), prefix, ports)
+        given = self.parameters(statement, block, scope)
+        path = prefix + statement.name.text
+        self.instances.add(path)
+        try:
+            inner = _lets([s for s in block.body if isinstance(s, Let)], self.lets, given)
+            body = [s for s in block.body if isinstance(s, PartStatement)]
+            return self.expand(body, path + ".", dict(zip(port_names, outer)), inner,
+                               (*stack, block.name.text))
+        except NodegateError as error:
+            raise type(error)(error.message, error.location,
+                              (*error.notes, f"in `{path}` at {statement.name.location}")) from None
+
+    def parameters(self, statement: PartStatement, block: Block, scope: Scope) -> dict:
+        """The instance's `KEY = VALUE` items, which set the block's let values."""
+        names = [s.name.text for s in block.body if isinstance(s, Let)]
+        given: dict[str, tuple[Quantity, Name]] = {}
+        for prop in statement.props:
+            if prop.key is None or prop.at is not None:
+                raise DesignError("a block instance takes only `NAME = VALUE` items, setting the block's lets",
+                                  prop.location)
+            if prop.key.text not in names:
+                raise DesignError(f"block `{block.name.text}` has no let `{prop.key.text}`", prop.key.location,
+                                  (f"its lets: {', '.join(names) or 'none'}",))
+            if prop.key.text in given:
+                raise DesignError(f"`{prop.key.text}` is given twice", prop.key.location)
+            given[prop.key.text] = (evaluate(prop.value, scope), prop.key)
+        return given

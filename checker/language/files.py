@@ -1,0 +1,100 @@
+"""Reading circuit files and following `use`, with every size and path bounded.
+
+Files arrive in pull requests from anyone: a `use` path must stay inside the
+root folder after symlinks are resolved, files are at most 2 MiB, at most
+`MAX_FILES` files are read, and a `use` cycle is an error naming the chain.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+from checker.errors import CircuitSyntaxError, DesignError, Location
+from checker.language.parser import parse_tree
+from checker.language.source import Source
+from checker.language.syntax import Block, Let, Statement, Use, statements
+
+MAX_FILE_BYTES = 2 * 1024 * 1024
+MAX_FILES = 256
+
+
+def read_source(path: Path, shown: str, location: Location | None) -> Source:
+    """The text of a file as a Source; DesignError (at `location`, the `use` if any) when unreadable."""
+    try:
+        if not path.is_file():
+            raise DesignError(f"`{shown}` is not a file", location)
+        with open(path, "rb") as handle:
+            data = handle.read(MAX_FILE_BYTES + 1)
+    except OSError as error:
+        raise DesignError(f"cannot read `{shown}`: {error.strerror or error}", location) from None
+    if len(data) > MAX_FILE_BYTES:
+        raise DesignError(f"`{shown}` is larger than {MAX_FILE_BYTES // (1024 * 1024)} MiB", location)
+    return Source(shown, decode(data, shown))
+
+
+def decode(data: bytes, shown: str) -> str:
+    """UTF-8 text with line ends normalised; a CircuitSyntaxError at the first bad byte."""
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as error:
+        start = data.rfind(b"\n", 0, error.start) + 1
+        end = data.find(b"\n", error.start)
+        line = data[start:end if end >= 0 else len(data)].decode("utf-8", errors="replace")
+        column = len(data[start:error.start].decode("utf-8", errors="replace")) + 1
+        location = Location(shown, data.count(b"\n", 0, error.start) + 1, column, line)
+        raise CircuitSyntaxError(f"the file is not UTF-8 text (byte 0x{data[error.start]:02X})", location) from None
+    return text.removeprefix("\ufeff").replace("\r\n", "\n")
+
+
+class Loader:
+    """Parses a top-level file and splices in the `let` and `block` statements of the files it uses.
+
+    A file used twice (by two libraries, say) is read once; its second `use` adds nothing.
+    """
+
+    def __init__(self, root: Path):
+        self.root = root.resolve()
+        self.seen: set[Path] = set()
+
+    def top(self, source: Source, real: Path | None) -> list[Statement]:
+        chain = (real.resolve(),) if real is not None else ()
+        self.seen.update(chain)
+        return self.statements(source, chain, library=False)
+
+    def statements(self, source: Source, chain: tuple[Path, ...], library: bool) -> list[Statement]:
+        found: list[Statement] = []
+        for statement in statements(parse_tree(source), source):
+            if isinstance(statement, Use):
+                found.extend(self.use(statement, source, chain))
+            elif library and not isinstance(statement, (Let, Block)):
+                raise DesignError("a library file holds only `let`, `block` and `use` statements",
+                                  statement.location)
+            else:
+                found.append(statement)
+        return found
+
+    def use(self, statement: Use, source: Source, chain: tuple[Path, ...]) -> list[Statement]:
+        target = Path(source.path).parent / statement.path
+        shown = os.path.normpath(target)
+        resolved = self.resolve(target, statement)
+        if resolved in chain:
+            names = [p.name for p in chain[chain.index(resolved):]] + [resolved.name]
+            raise DesignError(f"`use` cycle: {' -> '.join(names)}", statement.location)
+        if resolved in self.seen:
+            return []
+        self.seen.add(resolved)
+        if len(self.seen) > MAX_FILES:
+            raise DesignError(f"more than {MAX_FILES} files are used", statement.location)
+        library = read_source(resolved, shown, statement.location)
+        return self.statements(library, chain + (resolved,), library=True)
+
+    def resolve(self, target: Path, statement: Use) -> Path:
+        try:
+            resolved = target.resolve()
+        except (OSError, RuntimeError):
+            raise DesignError(f"cannot resolve `{statement.path}`", statement.location) from None
+        if not resolved.is_relative_to(self.root):
+            raise DesignError(f"`{statement.path}` is outside the root folder `{self.root}`",
+                              statement.location, ("`use` paths stay inside the repository",))
+        return resolved

@@ -1,0 +1,167 @@
+"""Text to lark tree: the grammar in `circuit.lark`, line continuation, syntax errors.
+
+The grammar is loaded once (LALR, contextual lexer, positions kept). Every lark
+error becomes a `CircuitSyntaxError` at the offending token, in plain words.
+"""
+
+from __future__ import annotations
+
+import threading
+from importlib import resources
+
+from lark import Lark, Token, Tree
+from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken
+from lark.lexer import PatternStr
+
+from checker.errors import CircuitSyntaxError, Location
+from checker.language.source import Source
+
+MAX_PARENTHESES = 32  # nesting depth of `( … )`; deeper is an error, never a crash
+
+_STATE = threading.local()  # per-parse memory of the post-lexer, read when reporting errors
+
+
+class _Continuation:
+    """Drops line ends inside parentheses and after a trailing comma (LANGUAGE.md, lexical rules)."""
+
+    always_accept = ("_NL",)
+
+    def process(self, stream):
+        _STATE.open, _STATE.comma = [], None
+        previous = previous_token = None
+        for token in stream:
+            if token.type == "LPAR":
+                _STATE.open.append(token)
+                if len(_STATE.open) > MAX_PARENTHESES:
+                    raise CircuitSyntaxError(
+                        f"parentheses nested more than {MAX_PARENTHESES} deep", _STATE.source.at(token))
+            elif token.type == "RPAR" and _STATE.open:
+                _STATE.open.pop()
+            elif token.type == "_NL" and (_STATE.open or previous == "COMMA"):
+                if not _STATE.open:
+                    _STATE.comma = previous_token
+                continue
+            previous, previous_token = token.type, token
+            yield token
+
+
+_POSTLEX = _Continuation()
+_GRAMMAR = resources.files("checker.language").joinpath("circuit.lark").read_text(encoding="utf-8")
+_PARSER = Lark(_GRAMMAR, parser="lalr", lexer="contextual", propagate_positions=True,
+               maybe_placeholders=True, postlex=_POSTLEX)
+
+# Common mistakes, recognised by the parser state they stop in (lark's match_examples).
+# The parser state includes the stack depth, so each example is tried after a first
+# statement and inside a block (see `_in_context`).
+_MISTAKES = {
+    "a two-terminal part is written `KIND NAME from NET to NET`; "
+    "a part with pins `KIND NAME (PIN: NET, ...)`": [
+        "resistor R1 a to b\n", "resistor R1 a b\n"],
+    "expected `to` after the first net: `KIND NAME from NET to NET`": [
+        "resistor R1 from a b\n", "resistor R1 from a : 1 kohm\n"],
+    "a property is written `KEY = VALUE`, for example `tol = 5%`": [
+        "resistor R1 from a to b : 1 kohm, tol 5%\n", "case c : VBAT 3 V\n",
+        "regulator U (in: a, out: b, gnd: c) : vout 3 V\n"],
+    "properties follow a `:` after the nets, for example `resistor R1 from a to b : 10 kohm`": [
+        "resistor R1 from a to b 10 kohm\n", "regulator U (in: a, out: b, gnd: c) vout = 3 V\n"],
+    "a unit is written right after its number, prefix and unit together: `10 kohm`, `4.7 uF`": [
+        "let x = 10 k ohm\n"],
+    "a pin is written `PIN: NET`": ["bjt Q1 (c b, b: x, e: y)\n", "bjt Q1 (c = a)\n"],
+}
+
+
+
+def _in_context(mistakes: dict[str, list[str]]) -> dict[str, list[str]]:
+    return {label: [prefix + text for text in texts for prefix in ("circuit x\n", "circuit x\nblock b () {\n")]
+            for label, texts in mistakes.items()}
+
+
+_EXAMPLES = _in_context(_MISTAKES)
+
+_WORDS = {"NAME": "a name", "NUMBER": "a number", "UNIT": "a unit", "STRING": "a quoted string",
+          "_NL": "the end of the line", "$END": "the end of the file"}
+
+
+def parse_tree(source: Source) -> Tree:
+    """The parse tree of `source.text`; CircuitSyntaxError for anything not in the grammar."""
+    _STATE.source = source
+    try:
+        return _PARSER.parse(source.text + "\n")
+    except UnexpectedInput as error:
+        raise _syntax_error(error, source) from None
+
+
+def _syntax_error(error: UnexpectedInput, source: Source) -> CircuitSyntaxError:
+    open_parens, comma = list(_STATE.open), _STATE.comma
+    line = getattr(error, "line", None)
+    if open_parens and (not isinstance(line, int) or line < 1 or line > open_parens[-1].line):
+        return CircuitSyntaxError("this `(` is never closed", source.at(open_parens[-1]))
+    location = _location(error, source)
+    if isinstance(error, UnexpectedCharacters):
+        return CircuitSyntaxError(_character_message(error, source), location)
+    hint = _match_example(error)
+    message = hint or _token_message(error)
+    notes = ()
+    if comma is not None and location.line > comma.line:
+        notes = (f"line {comma.line} ends with `,`, so the next line continues that statement",)
+    return CircuitSyntaxError(message, location, notes)
+
+
+def _location(error: UnexpectedInput, source: Source) -> Location:
+    token = getattr(error, "token", None)
+    if isinstance(error, UnexpectedEOF) or (isinstance(token, Token) and token.type == "$END"):
+        return source.end()
+    line, column = getattr(error, "line", -1), getattr(error, "column", -1)
+    if not isinstance(line, int) or line < 1:
+        return source.end()
+    return source.at_position(line, column)
+
+
+def _character_message(error: UnexpectedCharacters, source: Source) -> str:
+    char = error.char
+    if char == '"':
+        return "a string ends with `\"` on the same line"
+    if char == "\r":
+        return "unexpected carriage return; end lines with a newline"
+    if char.isprintable() and not char.isspace():
+        return f"unexpected character `{char}`"
+    return f"unexpected character U+{ord(char):04X}"
+
+
+def _match_example(error: UnexpectedInput) -> str | None:
+    if not isinstance(error, UnexpectedToken):
+        return None
+    saved = (_STATE.open, _STATE.comma)
+    try:
+        return error.match_examples(_PARSER.parse, _EXAMPLES, use_accepts=True)
+    except Exception:  # a fixture that fails differently only means "no match"
+        return None
+    finally:
+        _STATE.open, _STATE.comma = saved
+
+
+def _token_message(error: UnexpectedInput) -> str:
+    token = getattr(error, "token", None)
+    got = _describe_token(token) if isinstance(token, Token) else "the end of the file"
+    expected = sorted({_describe_terminal(name) for name in getattr(error, "expected", ()) or ()})
+    if not expected:
+        return f"unexpected {got}"
+    if len(expected) > 6:
+        expected = expected[:6] + ["..."]
+    return f"unexpected {got}; expected {', '.join(expected)}"
+
+
+def _describe_token(token: Token) -> str:
+    if token.type in ("_NL", "$END"):
+        return _WORDS[token.type]
+    return f"`{token.value}`"
+
+
+def _describe_terminal(name: str) -> str:
+    if name in _WORDS:
+        return _WORDS[name]
+    try:
+        pattern = _PARSER.get_terminal(name).pattern
+    except KeyError:
+        return name.lower()
+    return f"`{pattern.value}`" if isinstance(pattern, PatternStr) else name.lower()

@@ -1,0 +1,199 @@
+"""From limit files and solved circuits to Findings.
+
+Two steps so that every rule error shows before any solving: `compile_limits`
+(parse, resolve names against each circuit's Design, check dimensions, choose the
+items of `each` limits) and `evaluate` (one Outcome per limit x circuit x item x
+case, then waivers). `evaluate_limits` and `check_findings` do both.
+
+Which circuits a limit applies to (docs/limits.md): every circuit in which all its
+names resolve; a name that resolves in no circuit is an error at its token.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime
+from dataclasses import dataclass
+from typing import Callable, Iterable, Mapping, Sequence
+
+from checker.design import Design, OperatingPoint, Part
+from checker.errors import LimitError, Location
+from checker.findings import CircuitResult, Finding, Findings, Limit, Outcome, Waiver, WaiverNote
+from checker.limits.compiler import Absent, CaseValues, DeclaredValues, NoMatch, Scope, Unresolved, compile_condition
+from checker.limits.files import LimitFile
+from checker.limits.margins import Verdict
+from checker.limits.syntax import Locator, parse_expression
+from checker.limits.waivers import apply_waivers
+from checker.yamlsource import did_you_mean
+
+
+@dataclass(frozen=True)
+class CompiledItem:
+    """One item of a limit in one circuit: the part of an `each` limit (or None) and its compiled check."""
+
+    part: str | None
+    location: Location | None
+    check: Callable[[object], Verdict]
+
+    def outcome(self, values: CaseValues, corner: str = "") -> Outcome | None:
+        """The outcome in one case; None when a part or net the check reads is absent in that case."""
+        try:
+            return self.check(values).outcome(values.case, corner)
+        except Absent:
+            return None
+
+
+@dataclass(frozen=True)
+class CompiledLimit:
+    """A limit compiled for one circuit: its items (one, with part None, for limits without `each`)."""
+
+    limit: Limit
+    circuit: str
+    items: tuple[CompiledItem, ...]
+
+    def applies_to(self, case: str) -> bool:
+        return self.limit.cases is None or case in self.limit.cases
+
+
+@dataclass(frozen=True)
+class LimitSet:
+    """Every limit compiled for the circuits it applies to, and every waiver (checked against them)."""
+
+    limits: tuple[CompiledLimit, ...]
+    waivers: tuple[Waiver, ...]
+
+
+def _locator(text: str, limit: Limit) -> Locator:
+    return Locator(text, limit.location)
+
+
+def _selected(part: Part, each: str) -> bool:
+    return each[4:] in part.tags if each.startswith("tag:") else part.kind == each
+
+
+def _where_holds(tree, scope: Scope, values: DeclaredValues) -> bool:
+    """Whether a part passes `where`, judged on declared values; a property it lacks means no."""
+    try:
+        return compile_condition(tree, scope)(values).holds
+    except NoMatch:
+        return False
+
+
+def compile_limit(limit: Limit, design: Design, trees: tuple | None = None) -> CompiledLimit:
+    """Compile `limit` for one circuit; Unresolved when a name is not in this circuit, LimitError otherwise.
+
+    `trees` are the parsed check and where, when the caller has parsed them already.
+    """
+    check_tree, where_tree = trees or _parse(limit)
+    scope = Scope.of(design, _locator(limit.check, limit))
+    if limit.each is None:
+        return CompiledLimit(limit, design.name, (CompiledItem(None, None, compile_condition(check_tree, scope)),))
+    where_scope = dataclasses.replace(scope, where=_locator(limit.where or "", limit), static=True)
+    declared = DeclaredValues(design)
+    items = []
+    for part in design.parts:
+        if not _selected(part, limit.each):
+            continue
+        if where_tree is not None and not _where_holds(where_tree, dataclasses.replace(where_scope, item=part), declared):
+            continue
+        check = compile_condition(check_tree, dataclasses.replace(scope, item=part))
+        items.append(CompiledItem(part.name, part.location, check))
+    return CompiledLimit(limit, design.name, tuple(items))
+
+
+def _parse(limit: Limit) -> tuple:
+    where = parse_expression(limit.where, limit.location) if limit.where is not None else None
+    return parse_expression(limit.check, limit.location), where
+
+
+def _compile_everywhere(limit: Limit, designs: Sequence[Design]) -> list[CompiledLimit]:
+    """The limit in every circuit where all its names resolve; the latest-placed miss if none."""
+    trees = _parse(limit)
+    done, missed = [], []
+    for design in designs:
+        try:
+            done.append(compile_limit(limit, design, trees))
+        except Unresolved as error:
+            missed.append(error)
+    if missed and not done:
+        error = max(missed, key=lambda e: (e.location.line, e.location.column) if e.location else (0, 0))
+        if len(designs) > 1:
+            error.notes += ("a limit applies to each circuit that has every name it uses",)
+        raise error
+    return done
+
+
+def _all_limits(limit_files: Iterable[LimitFile]) -> list[Limit]:
+    """Every limit in order; an id used in two files is an error at the second."""
+    seen: dict[str, Limit] = {}
+    for limit in (limit for file in limit_files for limit in file.limits):
+        if limit.id in seen:
+            raise LimitError(f"limit id `{limit.id}` is used twice", limit.location,
+                             (f"first used in {seen[limit.id].source} at {seen[limit.id].location}",))
+        seen[limit.id] = limit
+    return list(seen.values())
+
+
+def _known(name: str, choices: Iterable[str], what: str, fallback: Location | None) -> None:
+    """LimitError at `name` (a LocatedStr when loaded from a file) unless it is one of `choices`."""
+    choices = tuple(choices)
+    if name not in choices:
+        raise LimitError(f"no {what} `{name}`", getattr(name, "location", fallback), did_you_mean(name, choices))
+
+
+def _check_waivers(waivers: Sequence[Waiver], limits: Sequence[Limit], designs: Sequence[Design]) -> None:
+    ids = [limit.id for limit in limits]
+    cases = {case for design in designs for case in design.cases}
+    parts = {part.name for design in designs for part in design.parts}
+    for waiver in waivers:
+        _known(waiver.limit, ids, "limit with id", waiver.location)
+        if designs and waiver.case is not None:
+            _known(waiver.case, cases, "case", waiver.location)
+        if designs and waiver.part is not None:
+            _known(waiver.part, parts, "part", waiver.location)
+
+
+def compile_limits(limit_files: Sequence[LimitFile], designs: Sequence[Design]) -> LimitSet:
+    """Check every limit and waiver against the circuits, before any solving. LimitError on the first problem."""
+    limits = _all_limits(limit_files)
+    cases = sorted({case for design in designs for case in design.cases})
+    compiled: list[CompiledLimit] = []
+    for limit in limits:
+        for case in (limit.cases or ()) if designs else ():
+            _known(case, cases, "case", limit.location)
+        compiled.extend(_compile_everywhere(limit, designs))
+    waivers = tuple(waiver for file in limit_files for waiver in file.waivers)
+    _check_waivers(waivers, limits, designs)
+    return LimitSet(tuple(compiled), waivers)
+
+
+def evaluate(limit_set: LimitSet, operating_points: Mapping[str, Sequence[OperatingPoint]],
+             today: datetime.date) -> tuple[tuple[Finding, ...], tuple[WaiverNote, ...]]:
+    """One Finding per limit x circuit x item with its outcome in each selected case, waivers applied.
+
+    An item whose parts are absent in every selected case yields no Finding.
+    """
+    values = {circuit: [CaseValues(op) for op in ops] for circuit, ops in operating_points.items()}
+    findings = []
+    for compiled in limit_set.limits:
+        cases = [case for case in values.get(compiled.circuit, ()) if compiled.applies_to(case.case)]
+        for item in compiled.items:
+            outcomes = tuple(o for o in (item.outcome(case) for case in cases) if o is not None)
+            if outcomes:
+                findings.append(Finding(compiled.limit, compiled.circuit, item.part, outcomes, "pass",
+                                        item_location=item.location))
+    return apply_waivers(findings, limit_set.waivers, today)
+
+
+def evaluate_limits(limit_files: Sequence[LimitFile], designs: Sequence[Design],
+                    operating_points: Mapping[str, Sequence[OperatingPoint]],
+                    today: datetime.date) -> tuple[tuple[Finding, ...], tuple[WaiverNote, ...]]:
+    """`compile_limits` then `evaluate`: findings and waiver notes for solved circuits."""
+    return evaluate(compile_limits(limit_files, designs), operating_points, today)
+
+
+def check_findings(limit_files: Sequence[LimitFile], designs: Sequence[Design],
+                   circuits: Sequence[CircuitResult], today: datetime.date) -> Findings:
+    """The whole `Findings` of a run, from the limit files, the designs and their solved cases."""
+    findings, notes = evaluate_limits(limit_files, designs, {c.name: c.operating_points for c in circuits}, today)
+    return Findings(findings=findings, circuits=tuple(circuits), waiver_notes=notes)

@@ -1,0 +1,180 @@
+"""Limit files and built-in packs: YAML in, `Limit` and `Waiver` records out (RULES.md, "A limits file").
+
+Only the shape is checked here (keys, types, ids, dates); expressions are parsed and
+their names resolved later, against the circuits, by `checker.limits.engine`.
+"""
+
+from __future__ import annotations
+
+import datetime
+import importlib.resources
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+from checker.errors import LimitError, Location
+from checker.findings import Limit, Waiver
+from checker.limits.vocabulary import KINDS
+from checker.yamlsource import (LocatedDict, check_keys, did_you_mean, expect_list, expect_mapping,
+                                expect_text, load_yaml, load_yaml_text, location_of)
+
+LIMIT_KEYS = ("id", "about", "check", "each", "where", "cases", "severity")
+WAIVER_KEYS = ("limit", "part", "case", "reason", "until")
+SEVERITIES = ("error", "warning")
+MAX_BYTES = 1_000_000
+
+_KEBAB = re.compile(r"[a-z0-9]+(-[a-z0-9]+)*")
+_WORD = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
+_PACK_NAME = re.compile(r"[a-z0-9][a-z0-9_-]*")
+
+
+@dataclass(frozen=True)
+class LimitFile:
+    """The limits and waivers of one file (or pack), in the order written."""
+
+    path: str
+    limits: tuple[Limit, ...]
+    waivers: tuple[Waiver, ...]
+
+
+def load_limit_file(path: Path | str) -> LimitFile:
+    """Read a limits file; LimitError at the offending key or value for anything malformed."""
+    data = load_yaml(Path(path), MAX_BYTES, LimitError)
+    return _read(data, str(path), str(path))
+
+
+def load_limit_text(text: str, path: str, source: str | None = None) -> LimitFile:
+    """As `load_limit_file`, from text already in memory (named `path` in messages)."""
+    return _read(load_yaml_text(text, path, LimitError), path, source or path)
+
+
+def rules_folder() -> Path:
+    """Where the built-in packs live: package data `checker.rules` once installed, else the repository's rules/."""
+    try:
+        return Path(str(importlib.resources.files("checker.rules")))
+    except ModuleNotFoundError:
+        return Path(__file__).parents[2] / "rules"
+
+
+def available_packs() -> tuple[str, ...]:
+    return tuple(sorted(path.stem for path in rules_folder().glob("*.yaml")))
+
+
+def load_pack(name: str, location: Location | None = None) -> LimitFile:
+    """A built-in pack by name (`derating` -> rules/derating.yaml); `location` is where the name was written."""
+    packs = available_packs()
+    if not _PACK_NAME.fullmatch(name) or name not in packs:
+        raise LimitError(f"no built-in limit pack `{name}`", location,
+                         did_you_mean(name, packs) + (f"available packs: {', '.join(packs) or 'none'}",))
+    path = rules_folder() / f"{name}.yaml"
+    data = load_yaml(path, MAX_BYTES, LimitError)
+    return _read(data, str(path), f"pack:{name}")
+
+
+def _read(data: object, path: str, source: str) -> LimitFile:
+    start = Location(path, 1, 1)
+    if data is None:
+        return LimitFile(path, (), ())
+    top = expect_mapping(data, "a limits file", start, LimitError)
+    check_keys(top, ("limits", "waivers"), "a limits file", LimitError)
+    limits = tuple(_limit(item, source) for item in _entries(top, "limits"))
+    _unique_ids(limits)
+    waivers = tuple(_waiver(item) for item in _entries(top, "waivers"))
+    return LimitFile(path, limits, waivers)
+
+
+def _entries(top: LocatedDict, key: str) -> list[LocatedDict]:
+    if key not in top or top[key] is None:
+        return []
+    entries = expect_list(top[key], f"`{key}`", top.value_location(key), LimitError)
+    return [expect_mapping(item, f"each entry of `{key}`", entries.item_location(i), LimitError)
+            for i, item in enumerate(entries)]
+
+
+def _text(entry: LocatedDict, key: str, what: str, required: bool = True):
+    if key not in entry:
+        if required:
+            raise LimitError(f"{what} needs `{key}`", entry.location)
+        return None
+    return expect_text(entry[key], f"`{key}`", entry.value_location(key), LimitError)
+
+
+def _limit(entry: LocatedDict, source: str) -> Limit:
+    check_keys(entry, LIMIT_KEYS, "a limit", LimitError)
+    ident = _text(entry, "id", "a limit")
+    if not _KEBAB.fullmatch(ident):
+        raise LimitError(f"limit id `{ident}` must be kebab-case: lower-case words joined by `-`", ident.location)
+    about = _text(entry, "about", f"limit `{ident}`")
+    if "\n" in about.strip():
+        raise LimitError("`about` is one line, shown in reports", about.location)
+    each, where = _text(entry, "each", "", False), _text(entry, "where", "", False)
+    if each is not None:
+        _check_each(each)
+    if where is not None and each is None:
+        raise LimitError("`where` chooses among the parts of `each`; add `each: KIND`", entry.key_location("where"))
+    return Limit(id=str(ident), about=str(about).strip(), check=_text(entry, "check", f"limit `{ident}`"),
+                 severity=_severity(entry), each=each, where=where, cases=_cases(entry),
+                 source=source, location=entry.key_location("id"))
+
+
+def _check_each(each: str) -> None:
+    if each.startswith("tag:"):
+        if not _WORD.fullmatch(each[4:]):
+            raise LimitError(f"`{each}` is not `tag:WORD`", each.location)
+    elif each not in KINDS:
+        raise LimitError(f"unknown part kind `{each}`", each.location,
+                         did_you_mean(each, KINDS) + (f"kinds: {', '.join(KINDS)}; or `tag:WORD`",))
+
+
+def _severity(entry: LocatedDict) -> str:
+    severity = _text(entry, "severity", "", False)
+    if severity is None:
+        return "error"
+    if severity not in SEVERITIES:
+        raise LimitError(f"unknown severity `{severity}`", severity.location,
+                         did_you_mean(severity, SEVERITIES) + ("severity is `error` or `warning`",))
+    return str(severity)
+
+
+def _cases(entry: LocatedDict) -> tuple[str, ...] | None:
+    if "cases" not in entry:
+        return None
+    items = expect_list(entry["cases"], "`cases`", entry.value_location("cases"), LimitError)
+    if not items:
+        raise LimitError("`cases` lists at least one case; leave it out for every case", items.location)
+    return tuple(expect_text(item, "a case name", items.item_location(i), LimitError) for i, item in enumerate(items))
+
+
+def _unique_ids(limits: tuple[Limit, ...]) -> None:
+    seen: dict[str, Limit] = {}
+    for limit in limits:
+        if limit.id in seen:
+            raise LimitError(f"limit id `{limit.id}` is used twice", limit.location,
+                             (f"first used at {seen[limit.id].location}",))
+        seen[limit.id] = limit
+
+
+def _waiver(entry: LocatedDict) -> Waiver:
+    check_keys(entry, WAIVER_KEYS, "a waiver", LimitError)
+    limit = _text(entry, "limit", "a waiver")
+    reason = _text(entry, "reason", f"the waiver of `{limit}`")
+    return Waiver(limit=limit, reason=str(reason).strip(), until=_date(entry),
+                  part=_text(entry, "part", "", False), case=_text(entry, "case", "", False),
+                  location=entry.location)
+
+
+def _date(entry: LocatedDict) -> datetime.date:
+    if "until" not in entry:
+        raise LimitError("a waiver needs `until`, the date it ends (YYYY-MM-DD)", entry.location)
+    value, where = entry["until"], entry.value_location("until")
+    if isinstance(value, datetime.datetime):
+        return value.date()
+    if isinstance(value, datetime.date):
+        return value
+    if isinstance(value, str):
+        try:
+            return datetime.date.fromisoformat(value.strip())
+        except ValueError:
+            pass
+    raise LimitError("`until` must be a date written YYYY-MM-DD", location_of(value, where))
+

@@ -1,0 +1,82 @@
+"""Compare a check with the same check on the base revision, and decide the exit code.
+
+A finding is identified across revisions by `Finding.key` (limit id, circuit, item).
+A finding *holds* when its status is "pass"; "fail", "warn" and "waived" all mean
+the limit does not hold (a waiver accepts a failure, it does not remove it, so
+adding or removing a waiver does not make a failure new or fixed).
+
+| on the base          | now: holds  | now: does not hold |
+|----------------------|-------------|--------------------|
+| absent (or no base)  | new         | new                |
+| holds                | unchanged   | new                |
+| does not hold        | fixed       | unchanged          |
+
+Base failures whose finding is gone now (limit, part or circuit removed) are fixed
+too. `Findings.fixed` lists every fixed finding as it was on the base, so a report
+can show them without looking at the head findings.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+from checker.errors import ConfigError
+from checker.findings import Finding, Findings
+
+FAIL_ON = ("any", "new")
+
+
+def _holds(finding: Finding) -> bool:
+    return finding.status == "pass"
+
+
+def _base_margin(head: Finding, base: Finding) -> float | None:
+    """The base's worst margin, when it is in the same unit as the head's (a rewritten check may not be)."""
+    if not base.outcomes or not head.outcomes or base.worst.unit != head.worst.unit:
+        return None
+    return base.worst.margin
+
+
+def _change(head: Finding, base: Finding | None) -> str:
+    if base is None:
+        return "new"
+    if _holds(base):
+        return "unchanged" if _holds(head) else "new"
+    return "fixed" if _holds(head) else "unchanged"
+
+
+def _marked(head: Finding, base: Finding | None) -> Finding:
+    margin = None if base is None else _base_margin(head, base)
+    return replace(head, change=_change(head, base), base_margin=margin)
+
+
+def compare(head: Findings, base: Findings | None, base_ref: str) -> Findings:
+    """`head` with every finding marked new/fixed/unchanged against `base` (None: no base to compare)."""
+    by_key = {} if base is None else {finding.key: finding for finding in base.findings}
+    marked = tuple(_marked(finding, by_key.get(finding.key)) for finding in head.findings)
+    now_holding = {finding.key for finding in marked if _holds(finding)}
+    now_present = {finding.key for finding in marked}
+    fixed = tuple(
+        replace(finding, change="fixed", base_margin=finding.worst.margin if finding.outcomes else None)
+        for finding in by_key.values()
+        if not _holds(finding) and (finding.key in now_holding or finding.key not in now_present)
+    )
+    return replace(head, findings=marked, fixed=fixed, base_ref=base_ref)
+
+
+def fail_exit_code(findings: Findings, fail_on: str = "any", strict: bool = False) -> int:
+    """1 when the check must fail the pull request, else 0 (exit codes of OUTPUTS.md).
+
+    Counted: findings with status "fail" (with `strict`, also "warn"), expired waivers,
+    and with `strict` unused waivers. With `fail_on="new"` a failing finding counts
+    only when it is not "unchanged" against the base; without a base every failure
+    counts. Waiver problems count in both modes.
+    """
+    if fail_on not in FAIL_ON:
+        raise ConfigError(f"`--fail-on {fail_on}`: expected one of {', '.join(FAIL_ON)}")
+    statuses = ("fail", "warn") if strict else ("fail",)
+    failing = [f for f in findings.findings if f.status in statuses]
+    if fail_on == "new":
+        failing = [f for f in failing if f.change != "unchanged"]
+    waiver_problems = findings.waiver_notes if strict else findings.expired_waivers
+    return 1 if failing or waiver_problems else 0

@@ -1,0 +1,104 @@
+"""Workflow-command lines that make a CI run mark failing limits on the changed files.
+
+One line per finding that does not hold and is not waived, and per waiver problem:
+`::error file=PATH,line=N,col=N,title=TITLE::MESSAGE` (`::warning` for warnings and
+unused waivers). An `each` limit is placed at the part's line in its circuit, any
+other limit at its `id:` line in its limits file; paths are relative to `root`
+(the repository's top level, where the CI runner checked it out).
+
+Escaping follows GitHub's documented rules for workflow commands ("Workflow commands
+for GitHub Actions", docs.github.com): in the message `%`, CR and LF become `%25`,
+`%0D`, `%0A`; property values additionally escape `:` and `,` as `%3A` and `%2C`.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+from checker.errors import Location
+from checker.findings import Finding, Findings, Outcome, WaiverNote
+from checker.units import format_temperature, format_value
+
+_DATA_ESCAPES = (("%", "%25"), ("\r", "%0D"), ("\n", "%0A"))
+_PROPERTY_ESCAPES = _DATA_ESCAPES + ((":", "%3A"), (",", "%2C"))
+_FINDING_LEVELS = {"fail": "error", "warn": "warning"}
+_WAIVER_LEVELS = {"expired": "error", "unused": "warning"}
+
+
+def escape_data(text: str) -> str:
+    """Escape the message part of a workflow command (after the second `::`)."""
+    for plain, escaped in _DATA_ESCAPES:
+        text = text.replace(plain, escaped)
+    return text
+
+
+def escape_property(text: str) -> str:
+    """Escape a property value (`file=`, `title=`) of a workflow command."""
+    for plain, escaped in _PROPERTY_ESCAPES:
+        text = text.replace(plain, escaped)
+    return text
+
+
+def _relative_path(path: str, root: Path) -> str:
+    """`path` relative to `root` with `/` separators; relative paths are taken from the current folder."""
+    absolute = os.path.abspath(path)
+    relative = os.path.relpath(absolute, os.path.abspath(root))
+    if relative == ".." or relative.startswith(".." + os.sep):
+        return Path(path).as_posix()
+    return Path(relative).as_posix()
+
+
+def _command(level: str, location: Location | None, title: str, message: str, root: Path) -> str:
+    props = []
+    if location is not None:
+        props += [f"file={escape_property(_relative_path(location.path, root))}",
+                  f"line={location.line}", f"col={location.column}"]
+    props.append(f"title={escape_property(title)}")
+    return f"::{level} {','.join(props)}::{escape_data(message)}"
+
+
+def _side(outcome: Outcome, value: float) -> str:
+    return format_temperature(value) if outcome.absolute else format_value(value, outcome.unit)
+
+
+def _margin_unit(outcome: Outcome) -> str:
+    """Margins of absolute temperatures are differences, shown in kelvin."""
+    return "K" if outcome.absolute else outcome.unit
+
+
+def _finding_message(finding: Finding, base_ref: str | None) -> str:
+    worst = finding.worst
+    where = f"{finding.circuit} / {finding.item}" if finding.item else finding.circuit
+    text = (f"{finding.limit.about} ({where}, case {worst.case}"
+            + (f", corner {worst.corner}" if worst.corner else "")
+            + f"): {_side(worst, worst.value)} against {_side(worst, worst.bound)}, "
+            + f"margin {format_value(worst.margin, _margin_unit(worst))} "
+            + f"({format_value(worst.relative * 100, '%')})")
+    if finding.change == "new" and base_ref:
+        text += f"; new since {base_ref}"
+    return text
+
+
+def _finding_line(finding: Finding, root: Path, base_ref: str | None) -> str:
+    located = finding.item_location if finding.limit.each and finding.item_location else finding.limit.location
+    title = f"nodegate {finding.limit.id}" + (f" on {finding.item}" if finding.item else "")
+    return _command(_FINDING_LEVELS[finding.status], located, title, _finding_message(finding, base_ref), root)
+
+
+def _waiver_line(note: WaiverNote, root: Path) -> str:
+    waiver = note.waiver
+    scope = "".join(f", {word} {value}" for word, value in (("part", waiver.part), ("case", waiver.case)) if value)
+    if note.problem == "expired":
+        message = f"the waiver of {waiver.limit}{scope} expired on {waiver.until.isoformat()}"
+    else:
+        message = f"the waiver of {waiver.limit}{scope} matches no failure; remove it"
+    return _command(_WAIVER_LEVELS[note.problem], waiver.location, f"nodegate waiver {waiver.limit}", message, root)
+
+
+def render_annotations(findings: Findings, root: Path) -> str:
+    """The workflow-command lines for `findings`, one per line, ending in a newline (empty if none)."""
+    lines = [_finding_line(f, root, findings.base_ref) for f in findings.findings
+             if f.status in _FINDING_LEVELS and f.outcomes]
+    lines += [_waiver_line(note, root) for note in findings.waiver_notes if note.problem in _WAIVER_LEVELS]
+    return "".join(line + "\n" for line in lines)

@@ -1,0 +1,111 @@
+"""The HTML report: one self-contained file (inline CSS and SVG, nothing fetched).
+
+jinja2 with autoescape on renders the shared view (`checker.report.view`), plus, per
+circuit, the operating point of every case and a margin chart per finding.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+
+import jinja2
+
+from checker import __version__
+from checker.design import OperatingPoint, PartResult
+from checker.findings import CircuitResult, Findings
+from checker.report.svg import Chart, margin_chart
+from checker.report.view import NO_TEXT, STATUS_WORDS, ReportView, Row, build_view
+from checker.units import format_temperature, format_value
+
+
+@dataclass(frozen=True)
+class TableRow:
+    name: str
+    quantity: str
+    cells: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class CircuitView:
+    name: str
+    title: str
+    path: str
+    cases: tuple[str, ...]  # column headings: case, ambient, how it was solved
+    nets: tuple[TableRow, ...]
+    parts: tuple[TableRow, ...]
+    limits: tuple[tuple[Row, Chart], ...]
+
+
+def _case_heading(point: OperatingPoint) -> str:
+    return f"{point.case} ({format_temperature(point.ambient)})"
+
+
+def _union(keys_per_case: list[list[str]]) -> list[str]:
+    """Every key in order of first appearance over the cases (absent parts leave gaps)."""
+    return list(dict.fromkeys(key for keys in keys_per_case for key in keys))
+
+
+def _net_rows(points: tuple[OperatingPoint, ...]) -> tuple[TableRow, ...]:
+    names = _union([list(p.nets) for p in points])
+    return tuple(TableRow(name, "voltage", tuple(
+        format_value(p.nets[name], "V") if name in p.nets else NO_TEXT for p in points)) for name in names)
+
+
+def _part_quantities(result: PartResult | None, pin_names: list[str]) -> list[tuple[str, str]]:
+    """(quantity, text) rows for one part in one case: v, i, p or pin currents and p."""
+    if result is None:
+        return [(q, NO_TEXT) for q in ["voltage", "current"] if not pin_names] + \
+               [(f"current into {pin}", NO_TEXT) for pin in pin_names] + [("power", NO_TEXT)]
+    if result.voltage is not None:
+        return [("voltage", format_value(result.voltage, "V")),
+                ("current", format_value(result.current or 0.0, "A")),
+                ("power", format_value(result.power, "W"))]
+    return [(f"current into {pin}", format_value(result.pins[pin], "A") if pin in result.pins else NO_TEXT)
+            for pin in pin_names] + [("power", format_value(result.power, "W"))]
+
+
+def _part_rows(points: tuple[OperatingPoint, ...]) -> tuple[TableRow, ...]:
+    rows = []
+    for name in _union([list(p.parts) for p in points]):
+        results = [p.parts.get(name) for p in points]
+        multi = [r for r in results if r is not None and r.voltage is None]
+        pin_names = _union([list(r.pins) for r in multi])
+        columns = [_part_quantities(r, pin_names) for r in results]
+        for index, (quantity, _) in enumerate(columns[0]):
+            label = name if index == 0 else ""
+            rows.append(TableRow(label, quantity, tuple(column[index][1] for column in columns)))
+    return tuple(rows)
+
+
+def circuit_view(circuit: CircuitResult, rows: tuple[Row, ...]) -> CircuitView:
+    """A circuit's operating-point tables and the margin chart of each of its findings."""
+    points = circuit.operating_points
+    mine = tuple((row, margin_chart(row.finding)) for row in rows
+                 if row.circuit == circuit.name and row.finding.outcomes)
+    return CircuitView(name=circuit.name, title=circuit.title, path=circuit.path,
+                       cases=tuple(_case_heading(p) for p in points),
+                       nets=_net_rows(points), parts=_part_rows(points), limits=mine)
+
+
+def _strategies(circuit: CircuitResult) -> str:
+    return ", ".join(f"{p.case}: {p.strategy}, {p.iterations} iteration{'s' if p.iterations != 1 else ''}"
+                     for p in circuit.operating_points)
+
+
+@lru_cache(maxsize=1)
+def _environment() -> jinja2.Environment:
+    env = jinja2.Environment(loader=jinja2.PackageLoader("checker.report", "templates"),
+                             autoescape=True, undefined=jinja2.StrictUndefined,
+                             trim_blocks=True, lstrip_blocks=True)
+    env.globals.update(status_word=lambda status: STATUS_WORDS.get(status, status),
+                       strategies=_strategies)
+    return env
+
+
+def render_html(findings: Findings) -> str:
+    """The whole report as one HTML document."""
+    view: ReportView = build_view(findings)
+    circuits = tuple((c, circuit_view(c, view.rows)) for c in findings.circuits)
+    template = _environment().get_template("report.html.j2")
+    return template.render(view=view, circuits=circuits, version=__version__)

@@ -1,0 +1,88 @@
+"""The JSON report, for other tools: every limit x circuit x item x case, in SI floats.
+
+Shape (marker "schema": "nodegate-findings/1"): `verdict` counts, `limits` (metadata
+of each limit once), `findings` (each with its outcomes and worst case), `fixed`
+(with --base), `waiver_notes`, and `circuits` with the operating point of every case
+in the shape of `solve --format json`. Temperatures are kelvin, flagged `absolute`;
+NaN and infinities become null so that any JSON reader accepts the file.
+"""
+
+from __future__ import annotations
+
+import json
+from typing import Any
+
+from checker.errors import Location
+from checker.findings import Finding, Findings, Limit, Outcome, Waiver, WaiverNote
+from checker.report.solve import case_json, finite_or_none
+from checker.report.view import make_verdict, new_failures
+
+SCHEMA = "nodegate-findings/1"
+
+
+def location_json(location: Location | None) -> dict[str, Any] | None:
+    if location is None:
+        return None
+    return {"path": location.path, "line": location.line, "column": location.column}
+
+
+def limit_json(limit: Limit) -> dict[str, Any]:
+    return {"id": limit.id, "about": limit.about, "check": limit.check, "severity": limit.severity,
+            "each": limit.each, "where": limit.where,
+            "cases": list(limit.cases) if limit.cases is not None else None,
+            "source": limit.source, "location": location_json(limit.location)}
+
+
+def waiver_json(waiver: Waiver | None) -> dict[str, Any] | None:
+    if waiver is None:
+        return None
+    return {"limit": waiver.limit, "part": waiver.part, "case": waiver.case, "reason": waiver.reason,
+            "until": waiver.until.isoformat(), "location": location_json(waiver.location)}
+
+
+def outcome_json(outcome: Outcome) -> dict[str, Any]:
+    return {"case": outcome.case, "corner": outcome.corner or None,
+            "value": finite_or_none(outcome.value), "bound": finite_or_none(outcome.bound),
+            "margin": finite_or_none(outcome.margin), "relative": finite_or_none(outcome.relative),
+            "unit": outcome.unit, "absolute": outcome.absolute, "holds": outcome.holds}
+
+
+def finding_json(finding: Finding) -> dict[str, Any]:
+    worst = finding.worst if finding.outcomes else None
+    return {"limit": finding.limit.id, "circuit": finding.circuit, "item": finding.item,
+            "status": finding.status, "severity": finding.limit.severity,
+            "worst_case": worst.case if worst else None,
+            "worst_margin": finite_or_none(worst.margin) if worst else None,
+            "change": finding.change,
+            "base_margin": finite_or_none(finding.base_margin) if finding.base_margin is not None else None,
+            "waiver": waiver_json(finding.waiver), "item_location": location_json(finding.item_location),
+            "outcomes": [outcome_json(o) for o in finding.outcomes]}
+
+
+def note_json(note: WaiverNote) -> dict[str, Any]:
+    return {"problem": note.problem, "waiver": waiver_json(note.waiver)}
+
+
+def verdict_json(findings: Findings) -> dict[str, Any]:
+    counts = {status: len(findings.with_status(status)) for status in ("pass", "fail", "warn", "waived")}
+    verdict = make_verdict(findings)
+    return {"passed": verdict.passed, "text": verdict.text, "findings": len(findings.findings), **counts,
+            "expired_waivers": len(findings.expired_waivers), "unused_waivers": len(findings.unused_waivers),
+            "new_failures": new_failures(findings), "fixed": len(findings.fixed)}
+
+
+def render_json(findings: Findings) -> str:
+    """The whole run as one JSON document, indented, ending in a newline."""
+    limits = {f.limit.id: f.limit for f in findings.findings + findings.fixed}
+    document = {
+        "schema": SCHEMA,
+        "base_ref": findings.base_ref,
+        "verdict": verdict_json(findings),
+        "limits": [limit_json(limit) for limit in limits.values()],
+        "findings": [finding_json(f) for f in findings.findings],
+        "fixed": [finding_json(f) for f in findings.fixed],
+        "waiver_notes": [note_json(n) for n in findings.waiver_notes],
+        "circuits": [{"name": c.name, "title": c.title, "path": c.path,
+                      "cases": [case_json(p) for p in c.operating_points]} for c in findings.circuits],
+    }
+    return json.dumps(document, indent=2, ensure_ascii=False, allow_nan=False) + "\n"

@@ -1,0 +1,88 @@
+"""The JUnit XML report, for CI hosts that show test results.
+
+One <testsuite> per circuit, one <testcase> per finding (classname = circuit,
+name = limit id, with the part in brackets for `each` limits). Mapping of statuses:
+- fail   -> <failure> (worst case, value vs bound, margin);
+- warn   -> passes, with the warning in <system-out>, since warnings do not fail a
+            check unless --strict;
+- waived -> <skipped> with the waiver's reason and end date;
+- pass   -> an empty testcase.
+Waivers that expired (an error) or matched nothing (a warning) form one more suite,
+"waivers", as a failure and a <system-out> note respectively.
+ElementTree does all the escaping.
+"""
+
+from __future__ import annotations
+
+import xml.etree.ElementTree as ET
+
+from checker.findings import Finding, Findings, WaiverNote
+from checker.report.view import Row, make_row, waiver_text
+
+WAIVER_SUITE = "waivers"
+
+
+def worst_sentence(row: Row) -> str:
+    """`case cold: value 13.1 mA vs bound 15.0 mA, margin -1.90 mA (-12.7 %)`."""
+    return (f"case {row.case}: value {row.value} vs bound {row.bound}, "
+            f"margin {row.margin} ({row.relative})")
+
+
+def testcase_name(finding: Finding) -> str:
+    return finding.limit.id + (f" [{finding.item}]" if finding.item else "")
+
+
+def _testcase(suite: ET.Element, finding: Finding) -> None:
+    row = make_row(finding)
+    case = ET.SubElement(suite, "testcase", classname=finding.circuit, name=testcase_name(finding))
+    if finding.status == "fail":
+        failure = ET.SubElement(case, "failure", message=worst_sentence(row), type="limit")
+        failure.text = f"{finding.limit.about}\ncheck: {finding.limit.check}\n{worst_sentence(row)}"
+    elif finding.status == "warn":
+        ET.SubElement(case, "system-out").text = f"warning: {finding.limit.about}; {worst_sentence(row)}"
+    elif finding.status == "waived":
+        ET.SubElement(case, "skipped", message=f"waived: {waiver_text(finding.waiver)}")
+
+
+def _suite(parent: ET.Element, name: str, cases: int, failures: int, skipped: int) -> ET.Element:
+    return ET.SubElement(parent, "testsuite", name=name, tests=str(cases), failures=str(failures),
+                         errors="0", skipped=str(skipped))
+
+
+def _circuit_suite(parent: ET.Element, circuit: str, findings: list[Finding]) -> None:
+    failures = sum(1 for f in findings if f.status == "fail")
+    skipped = sum(1 for f in findings if f.status == "waived")
+    suite = _suite(parent, circuit, len(findings), failures, skipped)
+    for finding in findings:
+        _testcase(suite, finding)
+
+
+def _waiver_suite(parent: ET.Element, notes: tuple[WaiverNote, ...]) -> None:
+    suite = _suite(parent, WAIVER_SUITE, len(notes), sum(1 for n in notes if n.problem == "expired"), 0)
+    for note in notes:
+        waiver = note.waiver
+        name = waiver.limit + "".join(f" [{v}]" for v in (waiver.part, waiver.case) if v)
+        case = ET.SubElement(suite, "testcase", classname=WAIVER_SUITE, name=name)
+        text = f"{note.problem} waiver: {waiver_text(waiver)}"
+        if note.problem == "expired":
+            ET.SubElement(case, "failure", message=text, type="waiver")
+        else:
+            ET.SubElement(case, "system-out").text = text
+
+
+def render_junit(findings: Findings) -> str:
+    """The JUnit XML document, UTF-8, with an XML declaration."""
+    by_circuit: dict[str, list[Finding]] = {c.name: [] for c in findings.circuits}
+    for finding in findings.findings:
+        by_circuit.setdefault(finding.circuit, []).append(finding)
+    root = ET.Element("testsuites", name="nodegate")
+    for circuit, items in by_circuit.items():
+        _circuit_suite(root, circuit, items)
+    if findings.waiver_notes:
+        _waiver_suite(root, findings.waiver_notes)
+    suites = root.findall("testsuite")
+    for total in ("tests", "failures", "errors", "skipped"):
+        root.set(total, str(sum(int(s.get(total, "0")) for s in suites)))
+    ET.indent(root)
+    return ET.tostring(root, encoding="unicode", xml_declaration=False).join(
+        ['<?xml version="1.0" encoding="UTF-8"?>\n', "\n"])

@@ -1,0 +1,183 @@
+"""The Markdown report, for the pull-request comment and the CI job summary.
+
+Layout (our own): the verdict, failing limits worst first, warnings, waived limits,
+limits fixed against the base revision, then every limit in a collapsed section, and
+the caution line. Every name and text from the input goes through `escape`, so no
+limit id, part name or waiver reason can break a table or inject markup.
+
+With `max_bytes`, whole rows (and then whole sections) are dropped from the end and a
+note says how many and where the full report is; the result never exceeds `max_bytes`.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+
+from checker.findings import Findings
+from checker.report.view import NO_TEXT, STATUS_WORDS, NoteRow, ReportView, Row, build_view
+
+# The size of one step's job summary the CI host accepts (1 MiB, rounded down to stay clear).
+JOB_SUMMARY_LIMIT = 1_000_000
+FULL_REPORT_HINT = "in the HTML and JSON reports that `nodegate check --out DIR` writes"
+
+_ENTITIES = {"&": "&amp;", "<": "&lt;", ">": "&gt;", '"': "&quot;"}
+# Characters with inline meaning in GitHub-flavoured Markdown: emphasis, code, links and
+# images (a bracket opens both), tables, strikethrough, math, mentions and backslash itself.
+_INLINE = set("\\`*_[]|~$@")
+_BREAKS = re.compile(r"[\r\n\v\f\x1c-\x1e\x85\u2028\u2029]+")
+# Control characters, and bidirectional overrides that would make a name read differently.
+_CONTROL = re.compile(r"[\x00-\x08\x0e-\x1b\x7f\u202a-\u202e\u2066-\u2069]")
+# At the start of a line: a heading (`#`), a list item or rule (`- `, `+ `, `---`, `===`)
+# or a numbered item (`1. `, `2) `); `>` and `*` are already escaped everywhere.
+_LINE_START = re.compile(r"^(\s*)(#|[-+=](?=[-+=\s]|$)|\d{1,9}(?=[.)](?:\s|$)))")
+
+
+def escape(text: str) -> str:
+    """Inline text that renders literally in a table cell or a line: one line, no markup."""
+    text = _CONTROL.sub("", _BREAKS.sub(" ", text))
+    out = "".join(_ENTITIES.get(c) or ("\\" + c if c in _INLINE else c) for c in text)
+    return _LINE_START.sub(_escape_marker, out, count=1)
+
+
+def _escape_marker(match: re.Match) -> str:
+    """`#` -> `\\#`, `- ` -> `\\- `, `12. ` -> `12\\. `."""
+    lead, marker = match.group(1), match.group(2)
+    if marker[0].isdigit():
+        return lead + marker + "\\"
+    return lead + "\\" + marker
+
+
+def _cell(text: str) -> str:
+    return escape(text) if text else NO_TEXT
+
+
+def _table_row(cells: list[str]) -> str:
+    return "| " + " | ".join(_cell(c) for c in cells) + " |"
+
+
+def _table_head(titles: list[str]) -> list[str]:
+    return ["| " + " | ".join(titles) + " |", "|" + "---|" * len(titles)]
+
+
+@dataclass
+class _Block:
+    """A section: `head` and `tail` are kept whole around as many `rows` as fit."""
+
+    head: list[str]
+    rows: list[str] = field(default_factory=list)
+    tail: list[str] = field(default_factory=list)
+
+    def lines(self) -> list[str]:
+        return self.head + self.rows + self.tail
+
+
+_MEASURE = ["circuit", "limit", "part", "worst case", "value", "bound", "margin", "relative"]
+
+
+def _measure_cells(row: Row) -> list[str]:
+    return [row.circuit, row.limit, row.item, row.case, row.value, row.bound, row.margin, row.relative]
+
+
+def _base_cells(row: Row, with_base: bool) -> list[str]:
+    return [row.change, row.margin_change] if with_base else []
+
+
+def _measure_block(title: str, rows: tuple[Row, ...], with_base: bool) -> _Block:
+    titles = _MEASURE + (["change", "margin vs base"] if with_base else [])
+    body = [_table_row(_measure_cells(r) + _base_cells(r, with_base)) for r in rows]
+    return _Block([f"### {title}", ""] + _table_head(titles), body, [""])
+
+
+def _note_line(note: NoteRow) -> str:
+    narrowed = "".join(f", {label} {escape(v)}" for label, v in (("part", note.part), ("case", note.case)) if v)
+    where = f" ({escape(note.where)})" if note.where else ""
+    return (f"- {note.problem} waiver of {escape(note.limit)}{narrowed}, until {escape(note.until)}: "
+            f"{escape(note.reason)}{where}")
+
+
+def _blocks(view: ReportView) -> list[_Block]:
+    with_base = view.base_ref is not None
+    blocks = [_Block(_verdict_lines(view))]
+    if view.failures:
+        blocks.append(_measure_block("Failing limits", view.failures, with_base))
+    if view.warnings or view.unused or view.expired:
+        block = _measure_block("Warnings", view.warnings, with_base) if view.warnings else _Block(["### Warnings", ""])
+        block.rows += [_note_line(n) for n in view.expired + view.unused]
+        blocks.append(block)
+    if view.waived:
+        body = [_table_row([r.circuit, r.limit, r.item, r.case, r.margin, r.waiver]) for r in view.waived]
+        head = ["### Waived", ""] + _table_head(["circuit", "limit", "part", "worst case", "margin", "waiver"])
+        blocks.append(_Block(head, body, [""]))
+    if view.fixed:
+        body = [_table_row([r.circuit, r.limit, r.item, r.base_margin]) for r in view.fixed]
+        head = ["### Fixed by this change", ""] + _table_head(["circuit", "limit", "part", "margin on base"])
+        blocks.append(_Block(head, body, [""]))
+    blocks.append(_every_limit_block(view.rows))
+    return blocks
+
+
+def _verdict_lines(view: ReportView) -> list[str]:
+    verdict = view.verdict
+    tail = ", ".join(verdict.details)
+    lines = [f"**nodegate: {verdict.headline}**" + (f" {tail}" if tail else "")]
+    if verdict.base:
+        lines += ["", escape(verdict.base)]
+    return lines + [""]
+
+
+def _every_limit_block(rows: tuple[Row, ...]) -> _Block:
+    head = [f"<details><summary>Every limit ({len(rows)})</summary>", ""]
+    head += _table_head(["status"] + _MEASURE + ["about"])
+    body = [_table_row([STATUS_WORDS.get(r.status, r.status)] + _measure_cells(r) + [r.about]) for r in rows]
+    return _Block(head, body, ["", "</details>", ""])
+
+
+def _size(lines: list[str]) -> int:
+    return sum(len(line.encode("utf-8")) + 1 for line in lines)
+
+
+def _note(omitted: int, max_bytes: int, full_report: str) -> list[str]:
+    return [f"_Truncated to fit {max_bytes} bytes: {omitted} more rows not shown. "
+            f"The full report is {escape(full_report)}._", ""]
+
+
+def _fit(blocks: list[_Block], footer: list[str], max_bytes: int, full_report: str) -> list[str]:
+    """Keep whole rows in order while they fit, leaving room for the note and the footer."""
+    total_rows = sum(len(b.rows) for b in blocks)
+    used = _size(footer) + _size(_note(total_rows, max_bytes, full_report))
+    kept: list[str] = []
+    omitted, stopped = 0, False
+    for block in blocks:
+        frame = _size(block.head) + _size(block.tail)
+        taken: list[str] = []
+        for row in ([] if stopped else block.rows):
+            if used + frame + _size(taken) + _size([row]) > max_bytes:
+                break
+            taken.append(row)
+        if stopped or (block.rows and not taken) or used + frame > max_bytes:
+            stopped, omitted = True, omitted + len(block.rows)
+            continue
+        omitted += len(block.rows) - len(taken)
+        stopped = len(taken) < len(block.rows)
+        kept += block.head + taken + block.tail
+        used += frame + _size(taken)
+    return kept + _note(omitted, max_bytes, full_report) + footer
+
+
+def render_markdown(findings: Findings, max_bytes: int | None = None, *,
+                    full_report: str = FULL_REPORT_HINT) -> str:
+    """The Markdown report; at most `max_bytes` UTF-8 bytes when given.
+
+    `full_report` completes the truncation note's sentence "The full report is …".
+    """
+    view = build_view(findings)
+    blocks = _blocks(view)
+    footer = [f"_{escape(view.caution)}_"]
+    lines = [line for block in blocks for line in block.lines()] + footer
+    if max_bytes is None or _size(lines) <= max_bytes:
+        return "\n".join(lines) + "\n"
+    text = "\n".join(_fit(blocks, footer, max_bytes, full_report)) + "\n"
+    if len(text.encode("utf-8")) > max_bytes:  # not even the verdict fits: keep what does
+        text = text.encode("utf-8")[:max_bytes].decode("utf-8", errors="ignore")
+    return text

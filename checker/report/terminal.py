@@ -1,0 +1,43 @@
+"""The short summary `nodegate check` prints: failures, then warnings, then the verdict.
+
+Plain text without colour codes, so it reads the same in a log file, a CI console
+and a terminal.
+"""
+
+from __future__ import annotations
+
+from checker.findings import Findings
+from checker.report.view import NoteRow, Row, build_view
+
+
+def _where(row: Row) -> str:
+    return f"{row.circuit}: {row.limit}" + (f" [{row.item}]" if row.item else "")
+
+
+def _finding_line(word: str, row: Row) -> str:
+    """`FAIL tail_light: led-current, case cold: 13.1 mA vs limit 15.0 mA, margin -1.90 mA (-12.7 %)`."""
+    line = (f"{word} {_where(row)}, case {row.case}: {row.value} vs limit {row.bound}, "
+            f"margin {row.margin} ({row.relative})")
+    return line + (f" [{row.change}]" if row.change else "")
+
+
+def _note_line(note: NoteRow) -> str:
+    narrowed = "".join(f" [{v}]" for v in (note.part, note.case) if v)
+    where = f" at {note.where}" if note.where else ""
+    return f"{note.problem.upper()} waiver of {note.limit}{narrowed}, until {note.until}{where}"
+
+
+def _one_line(text: str) -> str:
+    """Names from input files stay on their line: control characters become spaces."""
+    return "".join(c if c.isprintable() else " " for c in text)
+
+
+def summary_lines(findings: Findings) -> list[str]:
+    """One line per failing limit, then warnings and waiver problems, then the verdict."""
+    view = build_view(findings)
+    lines = [_finding_line("FAIL", row) for row in view.failures]
+    lines += [_note_line(note) for note in view.expired]
+    lines += [_finding_line("WARN", row) for row in view.warnings]
+    lines += [_note_line(note) for note in view.unused]
+    lines.append(view.verdict.text + "." + (f" {view.verdict.base}" if view.verdict.base else ""))
+    return [_one_line(line) for line in lines]

@@ -1,0 +1,225 @@
+"""Findings → the text every human-readable report shows, decided once.
+
+Markdown, HTML and the terminal summary render this view and never format a
+number themselves, so the three can never disagree on a verdict, a value or a margin.
+Strings here are raw: each renderer escapes them for its own format.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from checker.findings import Finding, Findings, Outcome, Waiver, WaiverNote
+from checker.units import format_temperature, format_value
+
+CAUTION = ("nodegate supports, and does not replace, a qualified engineer's review "
+           "and the applicable codes and standards.")
+
+STATUS_WORDS = {"pass": "holds", "fail": "fails", "warn": "warning", "waived": "waived"}
+NO_TEXT = "—"
+
+
+def plural(count: int, word: str, many: str | None = None) -> str:
+    """`1 circuit`, `2 circuits` (or the given irregular plural)."""
+    return f"{count} {word if count == 1 else (many or word + 's')}"
+
+
+def format_number(value: float, unit: str, absolute: bool = False) -> str:
+    """A value or bound: temperatures in °C, dimensionless numbers plain, others with SI prefixes."""
+    if absolute:
+        return format_temperature(value)
+    if not unit:
+        return f"{value:.3g}"
+    return format_value(value, unit)
+
+
+def format_margin(margin: float, unit: str, absolute: bool = False, signed: bool = False) -> str:
+    """A margin or a margin change; a difference of two temperatures is in kelvin."""
+    text = format_number(margin, "K" if absolute else unit)
+    if signed and margin > 0 and math.isfinite(margin):
+        return "+" + text
+    return text
+
+
+def format_relative(relative: float) -> str:
+    """The margin over the limit's scale, as a percentage with one decimal."""
+    return f"{relative * 100:.1f} %" if math.isfinite(relative) else NO_TEXT
+
+
+def case_label(outcome: Outcome) -> str:
+    """The case, with the tolerance corner or sample when there is one."""
+    return f"{outcome.case} ({outcome.corner})" if outcome.corner else outcome.case
+
+
+@dataclass(frozen=True)
+class Row:
+    """One finding as text: its worst outcome, and against the base revision when given."""
+
+    finding: Finding
+    status: str
+    circuit: str
+    limit: str
+    item: str
+    about: str
+    check: str
+    severity: str
+    case: str
+    value: str
+    bound: str
+    margin: str
+    relative: str
+    change: str
+    base_margin: str
+    margin_change: str
+    waiver: str
+
+
+@dataclass(frozen=True)
+class NoteRow:
+    """An expired or unused waiver as text."""
+
+    problem: str
+    limit: str
+    part: str
+    case: str
+    reason: str
+    until: str
+    where: str
+
+
+@dataclass(frozen=True)
+class Verdict:
+    """`headline` is the part shown in bold; `details` and `base` follow it."""
+
+    passed: bool
+    headline: str
+    details: tuple[str, ...]
+    base: str
+
+    @property
+    def text(self) -> str:
+        """The verdict as one plain sentence."""
+        tail = ", ".join(self.details)
+        return f"nodegate: {self.headline}" + (f" {tail}" if tail else "")
+
+
+@dataclass(frozen=True)
+class ReportView:
+    verdict: Verdict
+    failures: tuple[Row, ...]
+    warnings: tuple[Row, ...]
+    waived: tuple[Row, ...]
+    expired: tuple[NoteRow, ...]
+    unused: tuple[NoteRow, ...]
+    fixed: tuple[Row, ...]
+    rows: tuple[Row, ...]
+    base_ref: str | None
+    caution: str = CAUTION
+
+
+def waiver_text(waiver: Waiver | None) -> str:
+    return f"{waiver.reason} (until {waiver.until.isoformat()})" if waiver else ""
+
+
+def _base_columns(finding: Finding, worst: Outcome) -> tuple[str, str, str]:
+    """Change, base margin and margin change (now minus base), empty without --base."""
+    if finding.base_margin is None:
+        return finding.change or "", "", ""
+    base = format_margin(finding.base_margin, worst.unit, worst.absolute)
+    delta = format_margin(worst.margin - finding.base_margin, worst.unit, worst.absolute, signed=True)
+    return finding.change or "", base, delta
+
+
+def _worst_columns(worst: Outcome | None) -> dict[str, str]:
+    """Case, value, bound, margin and relative margin of the worst outcome (dashes if none)."""
+    if worst is None:
+        return dict.fromkeys(("case", "value", "bound", "margin", "relative"), NO_TEXT)
+    return dict(case=case_label(worst),
+                value=format_number(worst.value, worst.unit, worst.absolute),
+                bound=format_number(worst.bound, worst.unit, worst.absolute),
+                margin=format_margin(worst.margin, worst.unit, worst.absolute),
+                relative=format_relative(worst.relative))
+
+
+def make_row(finding: Finding) -> Row:
+    """The text of one finding, from its worst outcome."""
+    worst = finding.worst if finding.outcomes else None
+    change, base_margin, margin_change = (_base_columns(finding, worst) if worst
+                                          else (finding.change or "", "", ""))
+    return Row(
+        finding=finding, status=finding.status, circuit=finding.circuit,
+        limit=finding.limit.id, item=finding.item or "", about=finding.limit.about,
+        check=finding.limit.check, severity=finding.limit.severity, **_worst_columns(worst),
+        change=change, base_margin=base_margin, margin_change=margin_change,
+        waiver=waiver_text(finding.waiver),
+    )
+
+
+def make_note(note: WaiverNote) -> NoteRow:
+    waiver = note.waiver
+    where = f"{waiver.location.path}:{waiver.location.line}" if waiver.location else ""
+    return NoteRow(problem=note.problem, limit=waiver.limit, part=waiver.part or "",
+                   case=waiver.case or "", reason=waiver.reason,
+                   until=waiver.until.isoformat(), where=where)
+
+
+def _worst_first(rows: list[Row]) -> tuple[Row, ...]:
+    """Most negative relative margin first; undefined relative margins last, order kept."""
+    def key(row: Row) -> float:
+        relative = row.finding.worst.relative if row.finding.outcomes else math.inf
+        return relative if math.isfinite(relative) else math.inf
+    return tuple(sorted(rows, key=key))
+
+
+def make_verdict(findings: Findings) -> Verdict:
+    """The one-sentence verdict; `passed` matches exit code 0 (before --strict)."""
+    failures, expired = findings.failures, findings.expired_waivers
+    total = len(findings.findings)
+    details: list[str] = []
+    if failures:
+        headline = f"{plural(len(failures), 'limit')} {'fails' if len(failures) == 1 else 'fail'}"
+        details.append(f"in {plural(len({f.circuit for f in failures}), 'circuit')}")
+    elif expired:
+        headline = f"{plural(len(expired), 'waiver')} {'has' if len(expired) == 1 else 'have'} expired"
+    elif total:
+        headline = f"all {plural(total, 'limit')} hold" if total > 1 else "the 1 limit holds"
+        details.append(f"in {plural(len(findings.circuits), 'circuit')}")
+    else:
+        headline = "no limits to check"
+    counts = [(len(findings.warnings), "warning", None), (len(findings.with_status("waived")), "waived", "waived"),
+              (len(expired) if failures else 0, "expired waiver", None),
+              (len(findings.unused_waivers), "unused waiver", None)]
+    details.extend(plural(n, word, many) for n, word, many in counts if n)
+    return Verdict(passed=not failures and not expired, headline=headline,
+                   details=tuple(details), base=_base_sentence(findings))
+
+
+def new_failures(findings: Findings) -> int:
+    """Error-severity failures that the base revision did not have."""
+    return sum(1 for f in findings.failures if f.change == "new")
+
+
+def _base_sentence(findings: Findings) -> str:
+    """How this change moves the failures, against the base revision."""
+    if findings.base_ref is None:
+        return ""
+    new = new_failures(findings)
+    return (f"Against {findings.base_ref}, this change introduces {plural(new, 'failure')} "
+            f"and fixes {len(findings.fixed)}.")
+
+
+def build_view(findings: Findings) -> ReportView:
+    """The shared view of a check run, for Markdown, HTML and the terminal."""
+    rows = [make_row(f) for f in findings.findings]
+    return ReportView(
+        verdict=make_verdict(findings),
+        failures=_worst_first([r for r in rows if r.status == "fail"]),
+        warnings=_worst_first([r for r in rows if r.status == "warn"]),
+        waived=tuple(r for r in rows if r.status == "waived"),
+        expired=tuple(make_note(n) for n in findings.expired_waivers),
+        unused=tuple(make_note(n) for n in findings.unused_waivers),
+        fixed=tuple(make_row(f) for f in findings.fixed),
+        rows=tuple(rows),
+        base_ref=findings.base_ref,
+    )

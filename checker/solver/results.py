@@ -1,0 +1,74 @@
+"""Net voltages and part results read off a solution vector."""
+
+from __future__ import annotations
+
+from collections.abc import Iterator, Mapping
+from dataclasses import dataclass
+
+import numpy as np
+
+from checker.design import OperatingPoint, PartResult
+from checker.devices import Device
+from checker.solver.assembly import System
+
+
+def operating_point(system: System, x: np.ndarray, iterations: int, strategy: str) -> OperatingPoint:
+    """Every net (ground 0 V) and every part, in netlist order."""
+    x_ext = np.append(x, 0.0)
+    nets = dict(zip(system.nets, [0.0] + x[:system.n_nodes].tolist()))
+    groups = [_group_results(device, x_ext) for device in system.devices]
+    parts = PartResults([part.name for part in system.netlist.parts], groups, system.positions)
+    return OperatingPoint(system.netlist, nets, parts, iterations, strategy)
+
+
+@dataclass(frozen=True)
+class _Group:
+    """One device's results as arrays, one row per part."""
+
+    pins: tuple[str, ...]
+    currents: np.ndarray  # A into each pin, (parts, pins)
+    voltage: np.ndarray | None  # V, from minus to; None for multi-terminal kinds
+    power: np.ndarray  # W absorbed
+
+
+def _group_results(device: Device, x_ext: np.ndarray) -> _Group:
+    """Power is the sum over pins of pin voltage x current into the pin; for two pins, v x i."""
+    currents = device.pin_currents(x_ext) + 0.0  # + 0.0 turns -0.0 into 0.0 for the reports
+    volts = x_ext[device.nodes]
+    if device.pins == ("from", "to"):
+        voltage = volts[:, 0] - volts[:, 1]
+        return _Group(device.pins, currents, voltage, voltage * currents[:, 0] + 0.0)
+    return _Group(device.pins, currents, None, (volts * currents).sum(axis=1) + 0.0)
+
+
+class PartResults(Mapping):
+    """Part name -> PartResult, built on access from the solution's arrays.
+
+    A 500 x 500 resistor grid has half a million parts; building every PartResult
+    up front would cost more than the factorisation.
+    """
+
+    def __init__(self, names: list[str], groups: list[_Group], positions: list[np.ndarray]):
+        self._names = names
+        self._groups = groups
+        self._where: dict[str, tuple[int, int]] = {}
+        for number, members in enumerate(positions):
+            self._where.update((names[p], (number, row)) for row, p in enumerate(members.tolist()))
+
+    def __getitem__(self, name: str) -> PartResult:
+        number, row = self._where[name]
+        group = self._groups[number]
+        pins = dict(zip(group.pins, group.currents[row].tolist()))
+        power = float(group.power[row])
+        if group.voltage is None:
+            return PartResult(power, pins)
+        return PartResult(power, pins, float(group.voltage[row]), pins["from"])
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._names)
+
+    def __len__(self) -> int:
+        return len(self._names)
+
+    def __repr__(self) -> str:
+        return f"PartResults({len(self)} parts)"
