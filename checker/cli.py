@@ -7,6 +7,7 @@ waiver expired, 2 the input cannot be checked, 3 an internal error (a bug).
 from __future__ import annotations
 
 import argparse
+import datetime
 import sys
 from pathlib import Path
 from typing import Sequence
@@ -39,6 +40,13 @@ def _formats(text: str) -> tuple[str, ...]:
     return chosen
 
 
+def _date(text: str) -> datetime.date:
+    try:
+        return datetime.date.fromisoformat(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"`{text}` is not a date like 2027-06-30") from None
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="nodegate", description=(
         "Checks the DC operating points of circuit designs against the limits a hardware team writes."))
@@ -56,6 +64,8 @@ def build_parser() -> argparse.ArgumentParser:
                             "(default: md,html,json; `annotations` prints CI workflow commands)")
     check.add_argument("--out", type=Path, help="folder for the reports (default: the configuration's report paths)")
     check.add_argument("--strict", action="store_true", help="warnings and unused waivers fail too")
+    check.add_argument("--as-of", type=_date, metavar="YYYY-MM-DD",
+                       help="judge waiver expiry as of this date (default: today), to reproduce an old run")
 
     solve = commands.add_parser("solve", help="print the operating point of a circuit file")
     solve.add_argument("file", type=Path, help="a .circuit file")

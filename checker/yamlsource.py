@@ -150,6 +150,9 @@ class _Loader(yaml.SafeLoader):
             self._depth -= 1
 
 
+_COLLECTION_TAGS = ("tag:yaml.org,2002:map", "tag:yaml.org,2002:seq")
+
+
 class _Builder:
     """Turns composed YAML nodes into located Python values, counting nodes."""
 
@@ -160,6 +163,8 @@ class _Builder:
         self.count += 1
         if self.count > MAX_NODES:
             raise self.error(f"more than {MAX_NODES} YAML values", self.where(node))
+        if isinstance(node, yaml.CollectionNode) and node.tag not in _COLLECTION_TAGS:
+            raise self.error(f"YAML tag `{node.tag}` is not allowed here", self.where(node))
         if isinstance(node, yaml.MappingNode):
             return self.mapping(node)
         if isinstance(node, yaml.SequenceNode):

@@ -23,7 +23,7 @@ def read_source(path: Path, shown: str, location: Location | None) -> Source:
     """The text of a file as a Source; DesignError (at `location`, the `use` if any) when unreadable."""
     try:
         if not path.is_file():
-            raise DesignError(f"`{shown}` is not a file", location)
+            raise DesignError(f"cannot find the file `{shown}`", location)
         with open(path, "rb") as handle:
             data = handle.read(MAX_FILE_BYTES + 1)
     except OSError as error:

@@ -22,12 +22,12 @@ _STATE = threading.local()  # per-parse memory of the post-lexer, read when repo
 
 
 class _Continuation:
-    """Drops line ends inside parentheses and after a trailing comma (LANGUAGE.md, lexical rules)."""
+    """Drops line ends inside parentheses and after a trailing `,` (LANGUAGE.md, lexical rules) or `:`."""
 
     always_accept = ("_NL",)
 
     def process(self, stream):
-        _STATE.open, _STATE.comma = [], None
+        _STATE.open, _STATE.continued = [], None
         previous = previous_token = None
         for token in stream:
             if token.type == "LPAR":
@@ -37,9 +37,9 @@ class _Continuation:
                         f"parentheses nested more than {MAX_PARENTHESES} deep", _STATE.source.at(token))
             elif token.type == "RPAR" and _STATE.open:
                 _STATE.open.pop()
-            elif token.type == "_NL" and (_STATE.open or previous == "COMMA"):
+            elif token.type == "_NL" and (_STATE.open or previous in ("COMMA", "COLON")):
                 if not _STATE.open:
-                    _STATE.comma = previous_token
+                    _STATE.continued = previous_token
                 continue
             previous, previous_token = token.type, token
             yield token
@@ -92,7 +92,7 @@ def parse_tree(source: Source) -> Tree:
 
 
 def _syntax_error(error: UnexpectedInput, source: Source) -> CircuitSyntaxError:
-    open_parens, comma = list(_STATE.open), _STATE.comma
+    open_parens, continued = list(_STATE.open), _STATE.continued
     line = getattr(error, "line", None)
     if open_parens and (not isinstance(line, int) or line < 1 or line > open_parens[-1].line):
         return CircuitSyntaxError("this `(` is never closed", source.at(open_parens[-1]))
@@ -102,8 +102,8 @@ def _syntax_error(error: UnexpectedInput, source: Source) -> CircuitSyntaxError:
     hint = _match_example(error)
     message = hint or _token_message(error)
     notes = ()
-    if comma is not None and location.line > comma.line:
-        notes = (f"line {comma.line} ends with `,`, so the next line continues that statement",)
+    if continued is not None and location.line > continued.line:
+        notes = (f"line {continued.line} ends with `{continued.value}`, so the next line continues that statement",)
     return CircuitSyntaxError(message, location, notes)
 
 
@@ -131,13 +131,13 @@ def _character_message(error: UnexpectedCharacters, source: Source) -> str:
 def _match_example(error: UnexpectedInput) -> str | None:
     if not isinstance(error, UnexpectedToken):
         return None
-    saved = (_STATE.open, _STATE.comma)
+    saved = (_STATE.open, _STATE.continued)
     try:
         return error.match_examples(_PARSER.parse, _EXAMPLES, use_accepts=True)
     except Exception:  # a fixture that fails differently only means "no match"
         return None
     finally:
-        _STATE.open, _STATE.comma = saved
+        _STATE.open, _STATE.continued = saved
 
 
 def _token_message(error: UnexpectedInput) -> str:

@@ -89,7 +89,7 @@ def circuit_view(circuit: CircuitResult, rows: tuple[Row, ...]) -> CircuitView:
 
 
 def _strategies(circuit: CircuitResult) -> str:
-    return ", ".join(f"{p.case}: {p.strategy}, {p.iterations} iteration{'s' if p.iterations != 1 else ''}"
+    return "; ".join(f"{p.case}: {p.strategy}, {p.iterations} iteration{'s' if p.iterations != 1 else ''}"
                      for p in circuit.operating_points)
 
 

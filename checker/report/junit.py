@@ -14,12 +14,15 @@ ElementTree does all the escaping.
 
 from __future__ import annotations
 
+import re
 import xml.etree.ElementTree as ET
 
 from checker.findings import Finding, Findings, WaiverNote
 from checker.report.view import Row, make_row, waiver_text
 
 WAIVER_SUITE = "waivers"
+# Characters XML 1.0 does not allow at all, not even as references (XML 1.0, 2.2 "Characters").
+_NOT_XML = re.compile("[^\t\n\r\x20-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
 
 
 def worst_sentence(row: Row) -> str:
@@ -70,6 +73,14 @@ def _waiver_suite(parent: ET.Element, notes: tuple[WaiverNote, ...]) -> None:
             ET.SubElement(case, "system-out").text = text
 
 
+def _clean(root: ET.Element) -> None:
+    """Replace characters XML cannot carry (control characters from free text) with U+FFFD."""
+    for element in root.iter():
+        element.attrib.update({k: _NOT_XML.sub("\ufffd", v) for k, v in element.attrib.items()})
+        if element.text:
+            element.text = _NOT_XML.sub("\ufffd", element.text)
+
+
 def render_junit(findings: Findings) -> str:
     """The JUnit XML document, UTF-8, with an XML declaration."""
     by_circuit: dict[str, list[Finding]] = {c.name: [] for c in findings.circuits}
@@ -83,6 +94,7 @@ def render_junit(findings: Findings) -> str:
     suites = root.findall("testsuite")
     for total in ("tests", "failures", "errors", "skipped"):
         root.set(total, str(sum(int(s.get(total, "0")) for s in suites)))
+    _clean(root)
     ET.indent(root)
     return ET.tostring(root, encoding="unicode", xml_declaration=False).join(
         ['<?xml version="1.0" encoding="UTF-8"?>\n', "\n"])

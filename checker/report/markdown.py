@@ -19,7 +19,7 @@ from checker.report.view import NO_TEXT, STATUS_WORDS, NoteRow, ReportView, Row,
 
 # The size of one step's job summary the CI host accepts (1 MiB, rounded down to stay clear).
 JOB_SUMMARY_LIMIT = 1_000_000
-FULL_REPORT_HINT = "in the HTML and JSON reports that `nodegate check --out DIR` writes"
+FULL_REPORT_HINT = "in the HTML and JSON reports that nodegate check writes (see its --out option)"
 
 _ENTITIES = {"&": "&amp;", "<": "&lt;", ">": "&gt;", '"': "&quot;"}
 # Characters with inline meaning in GitHub-flavoured Markdown: emphasis, code, links and
@@ -97,14 +97,16 @@ def _note_line(note: NoteRow) -> str:
 
 
 def _blocks(view: ReportView) -> list[_Block]:
+    """Every section after the verdict, in reading order."""
     with_base = view.base_ref is not None
-    blocks = [_Block(_verdict_lines(view))]
+    blocks: list[_Block] = []
     if view.failures:
         blocks.append(_measure_block("Failing limits", view.failures, with_base))
-    if view.warnings or view.unused or view.expired:
-        block = _measure_block("Warnings", view.warnings, with_base) if view.warnings else _Block(["### Warnings", ""])
-        block.rows += [_note_line(n) for n in view.expired + view.unused]
-        blocks.append(block)
+    if view.warnings:
+        blocks.append(_measure_block("Warnings", view.warnings, with_base))
+    if view.expired or view.unused:
+        head = [] if view.warnings else ["### Warnings", ""]
+        blocks.append(_Block(head, [_note_line(n) for n in view.expired + view.unused], [""]))
     if view.waived:
         body = [_table_row([r.circuit, r.limit, r.item, r.case, r.margin, r.waiver]) for r in view.waived]
         head = ["### Waived", ""] + _table_head(["circuit", "limit", "part", "worst case", "margin", "waiver"])
@@ -142,11 +144,12 @@ def _note(omitted: int, max_bytes: int, full_report: str) -> list[str]:
             f"The full report is {escape(full_report)}._", ""]
 
 
-def _fit(blocks: list[_Block], footer: list[str], max_bytes: int, full_report: str) -> list[str]:
-    """Keep whole rows in order while they fit, leaving room for the note and the footer."""
+def _fit(verdict: list[str], blocks: list[_Block], footer: list[str], max_bytes: int,
+         full_report: str) -> list[str]:
+    """The verdict, then whole rows in order while they fit, leaving room for the note and the footer."""
     total_rows = sum(len(b.rows) for b in blocks)
-    used = _size(footer) + _size(_note(total_rows, max_bytes, full_report))
-    kept: list[str] = []
+    used = _size(verdict) + _size(footer) + _size(_note(total_rows, max_bytes, full_report))
+    kept: list[str] = list(verdict)
     omitted, stopped = 0, False
     for block in blocks:
         frame = _size(block.head) + _size(block.tail)
@@ -172,12 +175,12 @@ def render_markdown(findings: Findings, max_bytes: int | None = None, *,
     `full_report` completes the truncation note's sentence "The full report is …".
     """
     view = build_view(findings)
-    blocks = _blocks(view)
-    footer = [f"_{escape(view.caution)}_"]
-    lines = [line for block in blocks for line in block.lines()] + footer
+    verdict, blocks, footer = _verdict_lines(view), _blocks(view), [f"_{escape(view.caution)}_"]
+    lines = verdict + [line for block in blocks for line in block.lines()] + footer
     if max_bytes is None or _size(lines) <= max_bytes:
         return "\n".join(lines) + "\n"
-    text = "\n".join(_fit(blocks, footer, max_bytes, full_report)) + "\n"
-    if len(text.encode("utf-8")) > max_bytes:  # not even the verdict fits: keep what does
-        text = text.encode("utf-8")[:max_bytes].decode("utf-8", errors="ignore")
-    return text
+    lines = _fit(verdict, blocks, footer, max_bytes, full_report)
+    if _size(lines) > max_bytes:  # a limit this small keeps the verdict, then as much of the note as fits
+        lines = verdict + _note(sum(len(b.rows) for b in blocks), max_bytes, full_report)
+    text = "\n".join(lines) + "\n"
+    return text.encode("utf-8")[:max_bytes].decode("utf-8", errors="ignore")

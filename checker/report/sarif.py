@@ -61,9 +61,11 @@ def message_text(finding: Finding) -> str:
     """What failed, where and by how much, in one paragraph."""
     where = f"{finding.circuit}" + (f", part {finding.item}" if finding.item else "")
     text = f"{finding.limit.id} ({where}): {finding.limit.about}"
-    if finding.outcomes:
-        text += f"; worst {worst_sentence(make_row(finding))}"
-    return text + "."
+    row = make_row(finding) if finding.outcomes else None
+    if finding.change == "fixed":
+        return text + (f"; fixed by this change (margin on the base: {row.base_margin})." if row else
+                       "; fixed by this change.")
+    return text + (f"; worst {worst_sentence(row)}." if row else ".")
 
 
 def result_json(finding: Finding, rule_index: int, root: Path, base: bool) -> dict[str, Any]:

@@ -54,34 +54,38 @@ class System:
 
 
 def assemble(netlist: Netlist) -> System:
-    """Build the devices and the constant matrix and right-hand side of `netlist`."""
-    nets = _nets(netlist)
+    """Build the devices and the constant matrix and right-hand side of `netlist`.
+
+    Written as flat passes over all pins: a grid of 10^5 parts must not cost
+    more to assemble than to factorise.
+    """
+    parts = netlist.parts
+    pin_nets = [net for part in parts for _, net in part.pins]
+    nets = tuple(dict.fromkeys([netlist.ground] + pin_nets))  # the order of Netlist.nets
     index = {net: position - 1 for position, net in enumerate(nets)}  # ground -> -1
+    unknowns = np.fromiter(map(index.__getitem__, pin_nets), np.int64, len(pin_nets))
+    first_pin = np.cumsum([0] + [len(part.pins) for part in parts])
     devices: list[Device] = []
     positions: list[np.ndarray] = []
     next_unknown = len(nets) - 1
-    for kind, members in _by_kind(netlist.parts).items():
-        parts = [netlist.parts[m] for m in members]
-        cls = _device_class(kind, parts[0])
-        device = cls(parts, _pin_nodes(cls, parts, index), next_unknown, netlist.ambient)
+    for kind, members in _by_kind(parts).items():
+        group = [parts[m] for m in members.tolist()]
+        cls = _device_class(kind, group[0])
+        _check_pins(cls, group)
+        nodes = unknowns[first_pin[members][:, None] + np.arange(len(cls.pins))]
+        device = cls(group, nodes, next_unknown, netlist.ambient)
         next_unknown += device.n_branches
         devices.append(device)
-        positions.append(np.array(members, dtype=np.int64))
+        positions.append(members)
     matrix = _matrix([device.matrix() for device in devices], next_unknown)
     return System(netlist, nets, devices, positions, matrix, _rhs(devices, next_unknown))
 
 
-def _nets(netlist: Netlist) -> tuple[str, ...]:
-    """The same order as `Netlist.nets`, in one flat pass (it matters for 10^5 parts)."""
-    return tuple(dict.fromkeys([netlist.ground] + [net for part in netlist.parts for _, net in part.pins]))
-
-
-def _by_kind(parts: tuple[Part, ...]) -> dict[str, list[int]]:
+def _by_kind(parts: tuple[Part, ...]) -> dict[str, np.ndarray]:
     """Positions of the parts of each kind, kinds in order of first appearance."""
-    groups: dict[str, list[int]] = {}
-    for position, part in enumerate(parts):
-        groups.setdefault(part.kind, []).append(position)
-    return groups
+    kinds = [part.kind for part in parts]
+    column = np.array(kinds, dtype=object)
+    return {kind: np.flatnonzero(column == kind) for kind in dict.fromkeys(kinds)}
 
 
 def _device_class(kind: str, part: Part) -> type[Device]:
@@ -90,14 +94,12 @@ def _device_class(kind: str, part: Part) -> type[Device]:
     return DEVICES[kind]
 
 
-def _pin_nodes(cls: type[Device], parts: list[Part], index: dict[str, int]) -> np.ndarray:
-    """Unknown index of each pin's net, one row per part, columns in the kind's pin order."""
+def _check_pins(cls: type[Device], parts: list[Part]) -> None:
+    """Every part names the kind's pins in the kind's order (the kind table guarantees it)."""
     pins = [pin for part in parts for pin, _ in part.pins]
     if pins != list(cls.pins) * len(parts) or {len(part.pins) for part in parts} != {len(cls.pins)}:
         wrong = next(part for part in parts if tuple(pin for pin, _ in part.pins) != cls.pins)
         raise DesignError(f"{cls.kind} {wrong.name} must have the pins {', '.join(cls.pins)}", wrong.location)
-    flat = [index[net] for part in parts for _, net in part.pins]
-    return np.array(flat, dtype=np.int64).reshape(len(parts), len(cls.pins))
 
 
 def _matrix(stamps: list[Triplets], size: int) -> sp.csc_matrix:

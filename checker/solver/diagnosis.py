@@ -27,26 +27,26 @@ MAX_NAMED = 6  # parts or nets named in one message before "and N more"
 
 def diagnose(system: System) -> None:
     """Raise NoSolutionError for floating nets, current-source cut sets or voltage loops."""
-    a, b, kind, parts = _edges(system)
-    _check_floating(system, a, b, kind, parts)
-    _check_loops(system, a[kind == EdgeKind.VOLTAGE], b[kind == EdgeKind.VOLTAGE],
-                 [parts[i] for i in np.flatnonzero(kind == EdgeKind.VOLTAGE)])
+    a, b, kind, part = _edges(system)
+    _check_floating(system, a, b, kind, part)
+    voltage = kind == EdgeKind.VOLTAGE
+    _check_loops(system, a[voltage], b[voltage], part[voltage])
 
 
-def _edges(system: System) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[Part]]:
-    """All devices' edges as graph vertices (ground is vertex n_nodes) and the part of each."""
-    a, b, kind, parts = [], [], [], []
-    for device in system.devices:
+def _edges(system: System) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Every device's edges between graph vertices (ground is vertex n_nodes), and each
+    edge's part as a position in `system.netlist.parts`."""
+    a, b, kind, part = ([np.empty(0, np.int64)] for _ in range(4))
+    for device, positions in zip(system.devices, system.positions):
         edges = device.edges()
         a.append(edges.a)
         b.append(edges.b)
         kind.append(edges.kind)
-        parts.extend(device.parts[i] for i in edges.part)
-    ground = system.n_nodes
-    a_all, b_all = (np.concatenate(x or [np.empty(0, int)]).astype(np.int64) for x in (a, b))
-    a_all[a_all < 0] = ground
-    b_all[b_all < 0] = ground
-    return a_all, b_all, np.concatenate(kind or [np.empty(0, int)]), parts
+        part.append(positions[edges.part])
+    a_all, b_all = np.concatenate(a).astype(np.int64), np.concatenate(b).astype(np.int64)
+    a_all[a_all < 0] = system.n_nodes
+    b_all[b_all < 0] = system.n_nodes
+    return a_all, b_all, np.concatenate(kind).astype(np.int64), np.concatenate(part).astype(np.int64)
 
 
 def _components(a: np.ndarray, b: np.ndarray, vertices: int) -> tuple[int, np.ndarray]:
@@ -54,7 +54,7 @@ def _components(a: np.ndarray, b: np.ndarray, vertices: int) -> tuple[int, np.nd
     return connected_components(graph, directed=False)
 
 
-def _check_floating(system: System, a, b, kind, parts: list[Part]) -> None:
+def _check_floating(system: System, a, b, kind, part: np.ndarray) -> None:
     """Nets with no DC path to ground; a current pushed into such nets is a cut set."""
     path = kind != EdgeKind.CURRENT
     _, labels = _components(a[path], b[path], system.n_nodes + 1)
@@ -63,7 +63,7 @@ def _check_floating(system: System, a, b, kind, parts: list[Part]) -> None:
         return
     group = set(np.flatnonzero(labels == labels[floating[0]]).tolist())
     nets = [system.nets[v + 1] for v in sorted(group)]
-    drivers = [parts[i] for i in np.flatnonzero(kind == EdgeKind.CURRENT)
+    drivers = [system.netlist.parts[part[i]] for i in np.flatnonzero(kind == EdgeKind.CURRENT)
                if (int(a[i]) in group) != (int(b[i]) in group)]
     if drivers:
         raise _cut_set_error(system, nets, drivers)
@@ -91,7 +91,7 @@ def _cut_set_error(system: System, nets: list[str], drivers: list[Part]) -> NoSo
     return _error(system, message, drivers)
 
 
-def _check_loops(system: System, a: np.ndarray, b: np.ndarray, parts: list[Part]) -> None:
+def _check_loops(system: System, a: np.ndarray, b: np.ndarray, part: np.ndarray) -> None:
     """A loop of voltage sources and shorts: a forest on V vertices in c trees has V - c edges."""
     if a.size == 0:
         return
@@ -99,7 +99,7 @@ def _check_loops(system: System, a: np.ndarray, b: np.ndarray, parts: list[Part]
     if a.size <= system.n_nodes + 1 - count:
         return
     loop, loop_nets = _find_loop(a.tolist(), b.tolist())
-    members = [parts[i] for i in loop]
+    members = [system.netlist.parts[part[i]] for i in loop]
     verb = "forms" if len(members) == 1 else "form"
     names = [system.nets[(v + 1) % len(system.nets)] for v in loop_nets]
     through = f"net `{names[0]}`" if len(names) == 1 else f"nets {_join([f'`{n}`' for n in names])}"

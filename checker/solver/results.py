@@ -51,13 +51,16 @@ class PartResults(Mapping):
     def __init__(self, names: list[str], groups: list[_Group], positions: list[np.ndarray]):
         self._names = names
         self._groups = groups
-        self._where: dict[str, tuple[int, int]] = {}
+        self._position = {name: position for position, name in enumerate(names)}
+        self._group = np.empty(len(names), dtype=np.int64)
+        self._row = np.empty(len(names), dtype=np.int64)
         for number, members in enumerate(positions):
-            self._where.update((names[p], (number, row)) for row, p in enumerate(members.tolist()))
+            self._group[members] = number
+            self._row[members] = np.arange(members.size)
 
     def __getitem__(self, name: str) -> PartResult:
-        number, row = self._where[name]
-        group = self._groups[number]
+        position = self._position[name]
+        group, row = self._groups[self._group[position]], int(self._row[position])
         pins = dict(zip(group.pins, group.currents[row].tolist()))
         power = float(group.power[row])
         if group.voltage is None:

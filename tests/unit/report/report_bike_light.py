@@ -126,7 +126,7 @@ def bike_light_with_base() -> Findings:
 
 def hostile() -> Findings:
     """Names and texts that try to break tables and inject markup."""
-    evil = "x|y</td><script>alert(1)</script>\n# head [link](http://example.invalid) `code` *em* @someone"
+    evil = "x|y</td><script>alert(1)</script>\n# head [link](http://example.invalid) `code` *em* @someone\x01"
     limit = Limit(id="evil|id<script>", about=evil, check="current(P) <= 1 mA", source=LIMITS,
                   location=Location(LIMITS, 2, 1))
     bad = Finding(limit, "circ|uit\n<b>", "P|1\r\n<i>", (outcome("case|<s>\nx", 0.002, 0.001, True, "A"),), "fail")

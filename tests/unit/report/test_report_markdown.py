@@ -23,11 +23,11 @@ def cells(line: str) -> list[str]:
 
 
 def section(text: str, title: str) -> list[str]:
-    """The lines of the section under `### title`, up to the next blank line after its table."""
+    """The table and list lines of the section under `### title`, up to the next heading."""
     lines = text.splitlines()
     start = lines.index(f"### {title}") + 2
-    end = next(i for i in range(start, len(lines)) if not lines[i].startswith(("|", "- ")))
-    return lines[start:end]
+    end = next((i for i in range(start, len(lines)) if lines[i].startswith(("###", "<details>"))), len(lines))
+    return [line for line in lines[start:end] if line.startswith(("|", "- "))]
 
 
 def test_verdict_comes_first_and_counts_every_status():
@@ -144,6 +144,16 @@ def test_report_that_fits_is_not_cut():
     assert JOB_SUMMARY_LIMIT == 1_000_000
 
 
-def test_tiny_limit_never_overflows():
-    for limit in (0, 10, 200, 600):
-        assert len(render_markdown(_many(50), max_bytes=limit).encode("utf-8")) <= limit
+def test_tiny_limit_never_overflows_and_keeps_the_verdict_longest():
+    verdict = "**nodegate: 50 limits fail** in 1 circuit"
+    for limit in (0, 10, 60, 200, 600):
+        text = render_markdown(_many(50), max_bytes=limit)
+        assert len(text.encode("utf-8")) <= limit
+        assert text == (verdict + "\n")[:limit] or text.startswith(verdict + "\n")
+    assert "Truncated" in render_markdown(_many(50), max_bytes=200)
+
+
+def test_waiver_notes_are_a_list_apart_from_the_warning_table():
+    lines = render_markdown(bike_light()).splitlines()
+    first_note = next(i for i, line in enumerate(lines) if line.startswith("- "))
+    assert lines[first_note - 1] == "" and lines[first_note - 2].startswith("| ")

@@ -1,0 +1,63 @@
+"""One check run: configuration -> designs -> limits compiled -> cases solved -> Findings.
+
+Every input error surfaces before any solving: all circuits are elaborated and
+every limit is compiled against them first, so a typo in a limit file costs no
+solver time. Prints nothing; progress goes through the optional callback.
+"""
+
+from __future__ import annotations
+
+import datetime
+from pathlib import Path
+from typing import Callable
+
+from checker.design import Design
+from checker.errors import DesignError
+from checker.findings import CircuitResult, Findings
+from checker.language import load_design
+from checker.limits import LimitFile, compile_limits, evaluate, load_limit_file, load_pack
+from checker.repo.config import Config
+from checker.solver import solve_cases
+
+Progress = Callable[[str], None]
+
+
+def shown(path: Path) -> str:
+    """A path as the user should see it in messages: relative to the working folder when inside it."""
+    try:
+        return str(path.relative_to(Path.cwd()))
+    except ValueError:
+        return str(path)
+
+
+def load_designs(config: Config) -> list[Design]:
+    """Elaborate every circuit; circuit names must be unique across the repository."""
+    designs: list[Design] = []
+    for path in config.circuits:
+        design = load_design(shown(path), root=config.root)
+        twin = next((d for d in designs if d.name == design.name), None)
+        if twin is not None:
+            raise DesignError(f"circuit name `{design.name}` is used twice (also in `{twin.path}`); "
+                              "circuit names identify findings, so they must be unique", design.location)
+        designs.append(design)
+    return designs
+
+
+def load_limit_files(config: Config) -> list[LimitFile]:
+    return [load_pack(source.pack, source.location) if source.pack else load_limit_file(shown(source.path))
+            for source in config.limits]
+
+
+def run_check(config: Config, today: datetime.date, progress: Progress | None = None) -> Findings:
+    """Solve every circuit in every case and evaluate every limit of `config`."""
+    report = progress or (lambda message: None)
+    designs = load_designs(config)
+    limit_set = compile_limits(load_limit_files(config), designs)
+    circuits = []
+    for design in designs:
+        report(f"solving {design.name}: {len(design.netlists)} case(s), {len(design.parts)} part(s)")
+        points = tuple(solve_cases(design.netlists))
+        circuits.append(CircuitResult(design.name, design.title, design.path, points))
+    report(f"evaluating {len(limit_set.limits)} limit(s)")
+    findings, notes = evaluate(limit_set, {c.name: c.operating_points for c in circuits}, today)
+    return Findings(findings=findings, circuits=tuple(circuits), waiver_notes=notes)

@@ -1,0 +1,172 @@
+"""`nodegate.yaml`: which circuits, which limits, how to analyse, where the reports go.
+
+Read with the located safe YAML loader; every unknown key or wrong type is a
+ConfigError at its line and column with the nearest valid key. Circuit globs and
+limit paths are relative to the configuration file and must stay inside its folder
+(the repository root).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from checker.errors import ConfigError, Location
+from checker.yamlsource import (
+    LocatedDict, check_keys, expect_list, expect_mapping, expect_text, load_yaml, location_of,
+)
+
+TOP_KEYS = ("circuits", "limits", "analysis", "report")
+ANALYSIS_KEYS = ("tolerances", "samples", "seed")
+TOLERANCE_MODES = ("nominal", "worst-case", "monte-carlo")
+REPORT_KEYS = ("markdown", "html", "json", "junit", "sarif")
+REPORT_FORMAT = {"markdown": "md", "html": "html", "json": "json", "junit": "junit", "sarif": "sarif"}
+MAX_CIRCUITS = 1000
+MAX_SAMPLES = 1_000_000
+
+
+@dataclass(frozen=True)
+class LimitSource:
+    """A limits file (`path`) or a built-in pack (`pack`), with where the configuration names it."""
+
+    path: Path | None = None
+    pack: str | None = None
+    location: Location | None = field(default=None, compare=False)
+
+
+@dataclass(frozen=True)
+class Config:
+    """A loaded configuration; all paths absolute."""
+
+    path: Path
+    root: Path
+    circuits: tuple[Path, ...]
+    limits: tuple[LimitSource, ...]
+    tolerances: str = "nominal"
+    samples: int = 2000
+    seed: int = 1
+    reports: dict[str, Path] = field(default_factory=dict)  # format (md, html, ...) -> path
+
+
+def find_config(directory: Path, config: Path | None) -> Path:
+    """The configuration file: `--config`, else DIR/nodegate.yaml (or .yml)."""
+    if config is not None:
+        if not config.is_file():
+            raise ConfigError(f"configuration file `{config}` does not exist")
+        return config
+    for name in ("nodegate.yaml", "nodegate.yml"):
+        if (directory / name).is_file():
+            return directory / name
+    raise ConfigError(f"no nodegate.yaml in `{directory}`; run `nodegate init {directory}` to start one")
+
+
+def load_config(path: Path) -> Config:
+    """Read and validate a configuration file."""
+    path = path.resolve()
+    root = path.parent
+    data = load_yaml(path)
+    start = Location(str(path), 1, 1)
+    if data is None:
+        raise ConfigError("the configuration is empty; it needs at least `circuits:`", start)
+    data = expect_mapping(data, "the configuration", start)
+    check_keys(data, TOP_KEYS, "the configuration")
+    if "circuits" not in data:
+        raise ConfigError("the configuration has no `circuits:` list", data.location)
+    analysis = _analysis(data.get("analysis"), data)
+    return Config(
+        path=path, root=root,
+        circuits=_circuits(data["circuits"], root, data.value_location("circuits")),
+        limits=_limits(data.get("limits"), root, data),
+        reports=_reports(data.get("report"), root, data),
+        **analysis,
+    )
+
+
+def _inside(root: Path, text: str, where: Location | None, what: str) -> Path:
+    """`text` as a path relative to `root`, refused if it leaves the repository."""
+    if Path(text).is_absolute():
+        raise ConfigError(f"{what} `{text}` must be relative to the configuration file", where)
+    resolved = (root / text).resolve()
+    if resolved != root and root not in resolved.parents:
+        raise ConfigError(f"{what} `{text}` is outside the repository (the configuration's folder)", where)
+    return resolved
+
+
+def _circuits(value: object, root: Path, where: Location) -> tuple[Path, ...]:
+    items = expect_list(value, "`circuits`", where)
+    found: dict[Path, None] = {}
+    for index, item in enumerate(items):
+        pattern = expect_text(item, "a circuit path or glob", items.item_location(index))
+        _inside(root, pattern, pattern.location, "circuit path")
+        matches = sorted(root.glob(pattern)) if _is_glob(pattern) else [root / pattern]
+        if not matches:
+            raise ConfigError(f"no circuit file matches `{pattern}`", pattern.location)
+        for match in matches:
+            resolved = match.resolve()
+            if resolved != root and root not in resolved.parents:
+                raise ConfigError(f"circuit `{match}` is outside the repository", pattern.location)
+            if not resolved.is_file():
+                raise ConfigError(f"circuit file `{pattern}` does not exist", pattern.location)
+            found[resolved] = None
+    if not found:
+        raise ConfigError("`circuits` lists no circuit", where)
+    if len(found) > MAX_CIRCUITS:
+        raise ConfigError(f"more than {MAX_CIRCUITS} circuits", where)
+    return tuple(found)
+
+
+def _is_glob(pattern: str) -> bool:
+    return any(ch in pattern for ch in "*?[")
+
+
+def _limits(value: object, root: Path, data: LocatedDict) -> tuple[LimitSource, ...]:
+    if value is None:
+        return ()
+    items = expect_list(value, "`limits`", data.value_location("limits"))
+    sources = []
+    for index, item in enumerate(items):
+        where = items.item_location(index)
+        if isinstance(item, LocatedDict):
+            check_keys(item, ("pack",), "a limits entry")
+            name = expect_text(item.get("pack"), "`pack`", where)
+            sources.append(LimitSource(pack=str(name), location=name.location))
+            continue
+        text = expect_text(item, "a limits file path or `pack: NAME`", where)
+        path = _inside(root, text, text.location, "limits file")
+        if not path.is_file():
+            raise ConfigError(f"limits file `{text}` does not exist", text.location)
+        sources.append(LimitSource(path=path, location=text.location))
+    return tuple(sources)
+
+
+def _analysis(value: object, data: LocatedDict) -> dict:
+    if value is None:
+        return {}
+    section = expect_mapping(value, "`analysis`", data.value_location("analysis"))
+    check_keys(section, ANALYSIS_KEYS, "`analysis`")
+    result: dict = {}
+    if "tolerances" in section:
+        mode = expect_text(section["tolerances"], "`tolerances`", section.value_location("tolerances"))
+        if mode not in TOLERANCE_MODES:
+            raise ConfigError(f"`tolerances` must be one of {', '.join(TOLERANCE_MODES)}", mode.location)
+        result["tolerances"] = str(mode)
+    for key, low, high in (("samples", 1, MAX_SAMPLES), ("seed", 0, 2**32 - 1)):
+        if key in section:
+            number = section[key]
+            if isinstance(number, bool) or not isinstance(number, int) or not low <= number <= high:
+                raise ConfigError(f"`{key}` must be a whole number from {low} to {high}",
+                                  section.value_location(key))
+            result[key] = number
+    return result
+
+
+def _reports(value: object, root: Path, data: LocatedDict) -> dict[str, Path]:
+    if value is None:
+        return {}
+    section = expect_mapping(value, "`report`", data.value_location("report"))
+    check_keys(section, REPORT_KEYS, "`report`")
+    reports = {}
+    for key in section:
+        text = expect_text(section[key], f"`report.{key}`", section.value_location(key))
+        reports[REPORT_FORMAT[key]] = _inside(root, text, location_of(text, None), "report path")
+    return reports
