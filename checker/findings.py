@@ -69,7 +69,10 @@ class Finding:
     `status`: "pass", "fail" (an error-severity limit fails), "warn" (a
     warning-severity limit fails) or "waived" (it fails under a valid waiver).
     With `--base`, `change` is "new", "fixed" or "unchanged" and `base_margin` the
-    worst margin on the base revision.
+    worst margin on the base revision. With tolerance analysis, `drivers` lists the
+    parts whose tolerances move the worst margin most, as (part, margin change over
+    its tolerance band in the margin's unit), largest first; Monte Carlo fills
+    `fail_fraction`, the share of samples in which the limit fails.
     """
 
     limit: Limit
@@ -81,6 +84,8 @@ class Finding:
     item_location: Location | None = field(default=None, compare=False)
     change: str | None = None
     base_margin: float | None = None
+    drivers: tuple[tuple[str, float], ...] = ()
+    fail_fraction: float | None = None
 
     @property
     def worst(self) -> Outcome:

@@ -122,8 +122,9 @@ class _Case:
 
     def unknown(self, path: str, override: Override) -> DesignError:
         location = override.target[0].location
-        if path in self.instances:
-            return DesignError(f"`{path}` is a block instance; a case sets the parts inside it "
-                               f"(`{path}.PART = VALUE`) or removes it (`{path} = absent`)", location)
+        instance = next((p for p in (path, path.rsplit(".", 1)[0]) if p in self.instances), None)
+        if instance is not None:
+            return DesignError(f"`{instance}` is a block instance; a case sets the parts inside it "
+                               f"(`{instance}.PART = VALUE`) or removes it (`{instance} = absent`)", location)
         hint = nearest(path, self.parts)
         return DesignError(f"no part `{path}`" + (f"; did you mean `{hint}`?" if hint else ""), location)

@@ -89,6 +89,9 @@ class Scope:
         return self.where.error(message, pos, notes)
 
     def unresolved(self, ref: Ref, what: str, choices) -> Unresolved:
+        if ref.names[0] == "part" and self.item is None:
+            return Unresolved("`part` names the part being checked only in a limit with `each`",
+                              self.where.at(ref.pos))
         notes = did_you_mean(ref.text, choices)
         return Unresolved(f"no {what} `{ref.text}` in circuit `{self.design.name}`", self.where.at(ref.pos), notes)
 
@@ -240,8 +243,6 @@ def _ref(node: Ref, scope: Scope) -> Typed:
     if found is None:
         if node.text in scope.nets:
             raise scope.error(f"`{node.text}` is a net; its voltage is `voltage({node.text})`", node.pos)
-        if node.names[0] == "part":
-            raise Unresolved("`part` names the part being checked only in a limit with `each`", scope.where.at(node.pos))
         raise scope.unresolved(node, "part", scope.parts)
     name, part, used = found
     if used == len(node.names):

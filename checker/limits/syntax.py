@@ -217,7 +217,12 @@ def parse_expression(text: str, fallback: Location | None = None) -> object:
     except lark.exceptions.UnexpectedInput as exc:
         raise _syntax_error(exc, str(text), where) from None
     _check_depth(tree, where)
-    return _Build(where).transform(tree)
+    try:
+        return _Build(where).transform(tree)
+    except lark.exceptions.VisitError as exc:  # lark wraps what a rule method raises
+        if isinstance(exc.orig_exc, LimitError):
+            raise exc.orig_exc from None
+        raise
 
 
 def _check_depth(tree: lark.Tree, where: Locator) -> None:
