@@ -116,6 +116,16 @@ class CircuitResult:
 
 
 @dataclass(frozen=True)
+class Analysis:
+    """How tolerances were analysed (RULES.md, "Tolerance analysis"): `mode` is "nominal",
+    "worst-case" or "monte-carlo"; `samples` and `seed` are set for "monte-carlo" only."""
+
+    mode: str = "nominal"
+    samples: int | None = None
+    seed: int | None = None
+
+
+@dataclass(frozen=True)
 class Findings:
     """Everything one `nodegate check` run found."""
 
@@ -124,6 +134,7 @@ class Findings:
     waiver_notes: tuple[WaiverNote, ...] = ()
     fixed: tuple[Finding, ...] = ()  # with --base: failed on the base, hold now or are gone
     base_ref: str | None = None
+    analysis: Analysis = Analysis()
 
     def with_status(self, status: str) -> tuple[Finding, ...]:
         return tuple(f for f in self.findings if f.status == status)

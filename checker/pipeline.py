@@ -2,7 +2,8 @@
 
 Every input error surfaces before any solving: all circuits are elaborated and
 every limit is compiled against them first, so a typo in a limit file costs no
-solver time. Prints nothing; progress goes through the optional callback.
+solver time. Solving and evaluating follow the configuration's tolerance analysis
+(`checker.analysis`). Prints nothing; progress goes through the optional callback.
 """
 
 from __future__ import annotations
@@ -13,11 +14,11 @@ from typing import Callable
 
 from checker.design import Design
 from checker.errors import DesignError
-from checker.findings import CircuitResult, Findings
+from checker.analysis import analyse
+from checker.findings import Analysis, Findings
 from checker.language import load_design
-from checker.limits import LimitFile, compile_limits, evaluate, load_limit_file, load_pack
+from checker.limits import LimitFile, compile_limits, load_limit_file, load_pack
 from checker.repo.config import Config
-from checker.solver import solve_cases
 
 Progress = Callable[[str], None]
 
@@ -48,16 +49,15 @@ def load_limit_files(config: Config) -> list[LimitFile]:
             for source in config.limits]
 
 
+def analysis_of(config: Config) -> Analysis:
+    """The configured tolerance analysis; samples and seed only matter for Monte Carlo."""
+    if config.tolerances == "monte-carlo":
+        return Analysis(config.tolerances, config.samples, config.seed)
+    return Analysis(config.tolerances)
+
+
 def run_check(config: Config, today: datetime.date, progress: Progress | None = None) -> Findings:
-    """Solve every circuit in every case and evaluate every limit of `config`."""
-    report = progress or (lambda message: None)
+    """Solve every circuit in every case and evaluate every limit of `config` under its tolerance analysis."""
     designs = load_designs(config)
     limit_set = compile_limits(load_limit_files(config), designs)
-    circuits = []
-    for design in designs:
-        report(f"solving {design.name}: {len(design.netlists)} case(s), {len(design.parts)} part(s)")
-        points = tuple(solve_cases(design.netlists))
-        circuits.append(CircuitResult(design.name, design.title, design.path, points))
-    report(f"evaluating {len(limit_set.limits)} limit(s)")
-    findings, notes = evaluate(limit_set, {c.name: c.operating_points for c in circuits}, today)
-    return Findings(findings=findings, circuits=tuple(circuits), waiver_notes=notes)
+    return analyse(limit_set, designs, today, analysis_of(config), progress)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+from pathlib import Path
 
 from checker.errors import DesignError, did_you_mean
 from checker.language import load_design
@@ -10,8 +11,21 @@ from checker.report import render_solve_json, render_solve_table
 from checker.solver import solve_cases
 
 
+def repository_root(circuit: Path) -> Path:
+    """The folder of the nearest `nodegate.yaml` above the circuit, else the circuit's folder.
+
+    `use` paths must stay inside the repository root; `solve` finds the same root
+    that `check` would use, so a board file that uses a shared library solves alike.
+    """
+    folder = circuit.resolve().parent
+    for candidate in (folder, *folder.parents):
+        if (candidate / "nodegate.yaml").is_file() or (candidate / "nodegate.yml").is_file():
+            return candidate
+    return folder
+
+
 def run(args: argparse.Namespace) -> int:
-    design = load_design(args.file)
+    design = load_design(args.file, root=repository_root(args.file))
     netlists = design.netlists
     if args.case is not None:
         netlists = tuple(n for n in netlists if n.case == args.case)

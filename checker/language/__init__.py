@@ -35,8 +35,15 @@ def parse_design(text: str, path: str = "<text>", root: str | Path | None = None
     if len(text.encode("utf-8", errors="surrogatepass")) > MAX_FILE_BYTES:
         raise DesignError(f"`{path}` is larger than {MAX_FILE_BYTES // (1024 * 1024)} MiB")
     source = Source(path, text.removeprefix("\ufeff").replace("\r\n", "\n"))
-    real = Path(path) if Path(path).is_file() else None
-    return _design(source, real, root)
+    return _design(source, _existing(path), root)
+
+
+def _existing(path: str) -> Path | None:
+    """The file `path` names, if any: text from memory may still stand for a file on disk."""
+    try:
+        return Path(path) if Path(path).is_file() else None
+    except (OSError, ValueError):
+        return None
 
 
 def _design(source: Source, real: Path | None, root: str | Path | None) -> Design:

@@ -92,7 +92,7 @@ class Loader:
     def resolve(self, target: Path, statement: Use) -> Path:
         try:
             resolved = target.resolve()
-        except (OSError, RuntimeError):
+        except (OSError, RuntimeError, ValueError):  # ValueError: a NUL byte in the path
             raise DesignError(f"cannot resolve `{statement.path}`", statement.location) from None
         if not resolved.is_relative_to(self.root):
             raise DesignError(f"`{statement.path}` is outside the root folder `{self.root}`",

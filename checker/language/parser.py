@@ -51,8 +51,9 @@ _PARSER = Lark(_GRAMMAR, parser="lalr", lexer="contextual", propagate_positions=
                maybe_placeholders=True, postlex=_POSTLEX)
 
 # Common mistakes, recognised by the parser state they stop in (lark's match_examples).
-# The parser state includes the stack depth, so each example is tried after a first
-# statement and inside a block (see `_in_context`).
+# That state includes the depth of the parser's stack, which differs for the first
+# and later items of a list and inside a block, so each mistake is listed in those
+# positions and tried after a first statement, first in a block, and later in one.
 _MISTAKES = {
     "a two-terminal part is written `KIND NAME from NET to NET`; "
     "a part with pins `KIND NAME (PIN: NET, ...)`": [
@@ -60,23 +61,22 @@ _MISTAKES = {
     "expected `to` after the first net: `KIND NAME from NET to NET`": [
         "resistor R1 from a b\n", "resistor R1 from a : 1 kohm\n"],
     "a property is written `KEY = VALUE`, for example `tol = 5%`": [
-        "resistor R1 from a to b : 1 kohm, tol 5%\n", "case c : VBAT 3 V\n",
-        "regulator U (in: a, out: b, gnd: c) : vout 3 V\n"],
+        "resistor R1 from a to b : tol 5%\n", "resistor R1 from a to b : 1 kohm, tol 5%\n",
+        "resistor R1 from a to b : 1 kohm, rating = 1 W, tol 5%\n",
+        "case c : VBAT 3 V\n", "case c : VBAT = 3 V, MCU 1 mA\n", "case c : VBAT = 3 V, R = 1 ohm, MCU 1 mA\n"],
     "properties follow a `:` after the nets, for example `resistor R1 from a to b : 10 kohm`": [
         "resistor R1 from a to b 10 kohm\n", "regulator U (in: a, out: b, gnd: c) vout = 3 V\n"],
     "a unit is written right after its number, prefix and unit together: `10 kohm`, `4.7 uF`": [
         "let x = 10 k ohm\n"],
-    "a pin is written `PIN: NET`": ["bjt Q1 (c b, b: x, e: y)\n", "bjt Q1 (c = a)\n"],
+    "a pin is written `PIN: NET`": [
+        "bjt Q1 (c b, b: x, e: y)\n", "bjt Q1 (c: a, b x, e: y)\n", "bjt Q1 (c: a, b: x, e y)\n",
+        "bjt Q1 (c = a)\n"],
+    "a block's `{` ends its line and its `}` stands on a line of its own": [
+        "block b (p) { resistor R from p to q : 1 ohm\n", "block b (p) {}\n"],
 }
-
-
-
-def _in_context(mistakes: dict[str, list[str]]) -> dict[str, list[str]]:
-    return {label: [prefix + text for text in texts for prefix in ("circuit x\n", "circuit x\nblock b () {\n")]
-            for label, texts in mistakes.items()}
-
-
-_EXAMPLES = _in_context(_MISTAKES)
+_CONTEXTS = ("circuit x\n", "circuit x\nblock b () {\n", "circuit x\nblock b () {\nlet y = 1\n")
+_EXAMPLES = {label: [context + text for text in texts for context in _CONTEXTS]
+             for label, texts in _MISTAKES.items()}
 
 _WORDS = {"NAME": "a name", "NUMBER": "a number", "UNIT": "a unit", "STRING": "a quoted string",
           "_NL": "the end of the line", "$END": "the end of the file"}
@@ -93,12 +93,11 @@ def parse_tree(source: Source) -> Tree:
 
 def _syntax_error(error: UnexpectedInput, source: Source) -> CircuitSyntaxError:
     open_parens, continued = list(_STATE.open), _STATE.continued
-    line = getattr(error, "line", None)
-    if open_parens and (not isinstance(line, int) or line < 1 or line > open_parens[-1].line):
-        return CircuitSyntaxError("this `(` is never closed", source.at(open_parens[-1]))
     location = _location(error, source)
+    if open_parens and (_at_end(error) or location.line > open_parens[-1].line):
+        return CircuitSyntaxError("this `(` is never closed", source.at(open_parens[-1]))
     if isinstance(error, UnexpectedCharacters):
-        return CircuitSyntaxError(_character_message(error, source), location)
+        return CircuitSyntaxError(_character_message(error), location)
     hint = _match_example(error)
     message = hint or _token_message(error)
     notes = ()
@@ -107,9 +106,13 @@ def _syntax_error(error: UnexpectedInput, source: Source) -> CircuitSyntaxError:
     return CircuitSyntaxError(message, location, notes)
 
 
-def _location(error: UnexpectedInput, source: Source) -> Location:
+def _at_end(error: UnexpectedInput) -> bool:
     token = getattr(error, "token", None)
-    if isinstance(error, UnexpectedEOF) or (isinstance(token, Token) and token.type == "$END"):
+    return isinstance(error, UnexpectedEOF) or (isinstance(token, Token) and token.type == "$END")
+
+
+def _location(error: UnexpectedInput, source: Source) -> Location:
+    if _at_end(error):
         return source.end()
     line, column = getattr(error, "line", -1), getattr(error, "column", -1)
     if not isinstance(line, int) or line < 1:
@@ -117,7 +120,7 @@ def _location(error: UnexpectedInput, source: Source) -> Location:
     return source.at_position(line, column)
 
 
-def _character_message(error: UnexpectedCharacters, source: Source) -> str:
+def _character_message(error: UnexpectedCharacters) -> str:
     char = error.char
     if char == '"':
         return "a string ends with `\"` on the same line"

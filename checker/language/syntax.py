@@ -161,10 +161,9 @@ class _Builder:
         return Use(str(tree.children[0])[1:-1], self.source.at(tree.children[0]))
 
     def block(self, tree: Tree, location: Location) -> Block:
-        name, *rest = tree.children
-        ports = tuple(self.name(t) for t in rest if isinstance(t, Token))
-        body = tuple(self.statement(t) for t in rest if isinstance(t, Tree))
-        return Block(self.name(name), ports, body, location)
+        name, ports, *body = tree.children
+        names = tuple(self.name(t) for t in ports.children if isinstance(t, Token))
+        return Block(self.name(name), names, tuple(self.statement(t) for t in body), location)
 
     def two_terminal(self, tree: Tree, location: Location) -> PartStatement:
         kind, name, net_from, net_to, props = tree.children
@@ -173,9 +172,9 @@ class _Builder:
         return PartStatement(self.name(kind), self.name(name), True, pins, self.props(props), location)
 
     def pinned(self, tree: Tree, location: Location) -> PartStatement:
-        kind, name, *pins, props = tree.children
+        kind, name, pins, props = tree.children
         pairs = tuple((self.name(p.children[0]), self.name(p.children[1]))
-                      for p in pins if isinstance(p, Tree))
+                      for p in pins.children if isinstance(p, Tree))
         return PartStatement(self.name(kind), self.name(name), False, pairs, self.props(props), location)
 
     def props(self, tree: Tree | None) -> tuple[Prop, ...]:

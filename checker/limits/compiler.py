@@ -17,7 +17,7 @@ from checker.design import Design, OperatingPoint, Part
 from checker.errors import LimitError
 from checker.limits import margins
 from checker.limits.syntax import Binary, Call, Compare, InRange, Locator, Logic, Not, Num, Ref, Unary
-from checker.limits.vocabulary import FUNCTIONS, MEASURES, PRIMARY, PROPERTIES
+from checker.limits.vocabulary import FUNCTIONS, MEASURES, PRIMARY, PROPERTIES, property_type
 from checker.units import DIMENSIONLESS, KELVIN, Dim, dim_div, dim_mul, dim_name, dim_pow, parse_unit
 from checker.yamlsource import did_you_mean
 
@@ -262,11 +262,12 @@ def _property(name: str, part: Part, prop: str, pos: int, scope: Scope) -> Typed
         return Typed(False, lambda values: _read(values, name).value, dim, absolute)
     if prop not in PROPERTIES:
         raise scope.error(f"unknown property `{prop}`", pos, did_you_mean(prop, (*PROPERTIES, PRIMARY)))
-    if prop not in part.props:
+    kind_type = property_type(part.kind, prop)
+    if kind_type is None or prop not in part.props:
         if scope.static:
             raise NoMatch(name)
         raise scope.error(f"part `{name}` ({part.kind}) has no property `{prop}`", pos, _property_notes(part, scope))
-    dim, absolute = PROPERTIES[prop]
+    dim, absolute = kind_type
 
     def read(values):
         try:

@@ -7,7 +7,7 @@ their names resolved later, against the circuits, by `checker.limits.engine`.
 from __future__ import annotations
 
 import datetime
-import importlib.resources
+import importlib.util
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -49,11 +49,18 @@ def load_limit_text(text: str, path: str, source: str | None = None) -> LimitFil
 
 
 def rules_folder() -> Path:
-    """Where the built-in packs live: package data `checker.rules` once installed, else the repository's rules/."""
+    """Where the built-in packs live: package data `checker.rules` once installed, else the repository's rules/.
+
+    The installed folder has no `__init__.py` (a namespace package), so it is found
+    through its module spec rather than `importlib.resources.files`.
+    """
     try:
-        return Path(str(importlib.resources.files("checker.rules")))
+        spec = importlib.util.find_spec("checker.rules")
     except ModuleNotFoundError:
-        return Path(__file__).parents[2] / "rules"
+        spec = None
+    if spec is not None and spec.submodule_search_locations:
+        return Path(next(iter(spec.submodule_search_locations)))
+    return Path(__file__).parents[2] / "rules"
 
 
 def available_packs() -> tuple[str, ...]:

@@ -1,34 +1,25 @@
-"""What names in a limit may reach: part kinds, part properties with their dimensions, functions.
+"""What names in a limit may reach: part kinds and their properties (from `checker.kinds`), measures, functions.
 
 A limit reads nothing but these: no attribute of any Python object is reachable
 from a rule file. Part properties are stored by the elaborator as SI floats without
-a dimension, so their dimensions are listed here (LANGUAGE.md, "Part kinds").
+a dimension, so their dimensions come from the kind table.
 """
 
 from __future__ import annotations
 
-from checker.units import AMPERE, DIMENSIONLESS, KELVIN, OHM, VOLT, WATT, Dim, dim_div, dim_pow
+from checker.kinds import COMMON_PROPS, KINDS as _TABLE
+from checker.units import Dim
 
-PER_KELVIN: Dim = dim_div(DIMENSIONLESS, KELVIN)
-PER_VOLT: Dim = dim_div(DIMENSIONLESS, VOLT)
-KELVIN_PER_WATT: Dim = dim_div(KELVIN, WATT)
-AMPERE_PER_VOLT2: Dim = dim_div(AMPERE, dim_pow(VOLT, 2))
-
-KINDS = ("resistor", "capacitor", "inductor", "source", "load", "switch", "diode", "led", "zener",
-         "bjt", "mosfet", "regulator", "converter", "opamp")
-
-# property -> (dimension, absolute temperature?)
-PROPERTIES: dict[str, tuple[Dim, bool]] = {
-    "tol": (DIMENSIONLESS, False), "tempco": (PER_KELVIN, False), "rating": (WATT, False),
-    "vmax": (VOLT, False), "imax": (AMPERE, False), "pmax": (WATT, False), "dcr": (OHM, False),
-    "ron": (OHM, False), "isat": (AMPERE, False), "ideality": (DIMENSIONLESS, False),
-    "rseries": (OHM, False), "vf": (VOLT, False), "vz": (VOLT, False), "rz": (OHM, False),
-    "beta": (DIMENSIONLESS, False), "vth": (VOLT, False), "k": (AMPERE_PER_VOLT2, False),
-    "lambda": (PER_VOLT, False), "vout": (VOLT, False), "dropout": (VOLT, False),
-    "iq": (AMPERE, False), "efficiency": (DIMENSIONLESS, False), "gain": (DIMENSIONLESS, False),
-    "swing": (VOLT, False), "theta_ja": (KELVIN_PER_WATT, False), "tj_max": (KELVIN, True),
-}
+KINDS = tuple(_TABLE)
+PROPERTIES = tuple(sorted({name for kind in _TABLE.values() for name in kind.props} | set(COMMON_PROPS)))
 PRIMARY = "value"  # `R1.value`: the part's primary value, in the unit its `value_unit` names
 
 MEASURES = ("voltage", "current", "power", "junction_temp")
 FUNCTIONS = ("abs", "min", "max", "sqrt")
+
+
+def property_type(kind: str, name: str) -> tuple[Dim, bool] | None:
+    """Dimension and absolute-temperature flag of property `name` on a part of `kind`; None if it has none."""
+    table = _TABLE.get(kind)
+    prop = table.prop(name) if table is not None else COMMON_PROPS.get(name)
+    return None if prop is None else (prop.dim, prop.temperature)

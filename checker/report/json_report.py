@@ -1,8 +1,10 @@
 """The JSON report, for other tools: every limit x circuit x item x case, in SI floats.
 
-Shape (marker "schema": "nodegate-findings/1"): `verdict` counts, `limits` (metadata
-of each limit once), `findings` (each with its outcomes and worst case), `fixed`
-(with --base), `waiver_notes`, and `circuits` with the operating point of every case
+Shape (marker "schema": "nodegate-findings/1"): `analysis` (the tolerance mode, and
+samples and seed for Monte Carlo), `verdict` counts, `limits` (metadata of each limit
+once), `findings` (each with its outcomes and worst case, `drivers`: parts with the
+margin change over their tolerance band, and `fail_fraction` for Monte Carlo),
+`fixed` (with --base), `waiver_notes`, and `circuits` with the operating point of every case
 in the shape of `solve --format json`. Temperatures are kelvin, flagged `absolute`;
 NaN and infinities become null so that any JSON reader accepts the file.
 """
@@ -56,6 +58,8 @@ def finding_json(finding: Finding) -> dict[str, Any]:
             "change": finding.change,
             "base_margin": finite_or_none(finding.base_margin) if finding.base_margin is not None else None,
             "waiver": waiver_json(finding.waiver), "item_location": location_json(finding.item_location),
+            "drivers": [{"part": part, "margin_change": finite_or_none(change)} for part, change in finding.drivers],
+            "fail_fraction": finding.fail_fraction,
             "outcomes": [outcome_json(o) for o in finding.outcomes]}
 
 
@@ -77,6 +81,8 @@ def render_json(findings: Findings) -> str:
     document = {
         "schema": SCHEMA,
         "base_ref": findings.base_ref,
+        "analysis": {"mode": findings.analysis.mode, "samples": findings.analysis.samples,
+                     "seed": findings.analysis.seed},
         "verdict": verdict_json(findings),
         "limits": [limit_json(limit) for limit in limits.values()],
         "findings": [finding_json(f) for f in findings.findings],

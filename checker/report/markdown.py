@@ -75,17 +75,24 @@ class _Block:
 _MEASURE = ["circuit", "limit", "part", "worst case", "value", "bound", "margin", "relative"]
 
 
-def _measure_cells(row: Row) -> list[str]:
-    return [row.circuit, row.limit, row.item, row.case, row.value, row.bound, row.margin, row.relative]
+def _tolerance_titles(view: ReportView) -> list[str]:
+    """Extra columns of a tolerance analysis: the driving parts, and Monte Carlo's failure fraction."""
+    return (["driven by"] if view.with_drivers else []) + (["fails in"] if view.with_fractions else [])
+
+
+def _measure_cells(row: Row, view: ReportView) -> list[str]:
+    cells = [row.circuit, row.limit, row.item, row.case, row.value, row.bound, row.margin, row.relative]
+    return cells + ([row.drivers] if view.with_drivers else []) + ([row.fails_in] if view.with_fractions else [])
 
 
 def _base_cells(row: Row, with_base: bool) -> list[str]:
     return [row.change, row.margin_change] if with_base else []
 
 
-def _measure_block(title: str, rows: tuple[Row, ...], with_base: bool) -> _Block:
-    titles = _MEASURE + (["change", "margin vs base"] if with_base else [])
-    body = [_table_row(_measure_cells(r) + _base_cells(r, with_base)) for r in rows]
+def _measure_block(title: str, rows: tuple[Row, ...], view: ReportView) -> _Block:
+    with_base = view.base_ref is not None
+    titles = _MEASURE + _tolerance_titles(view) + (["change", "margin vs base"] if with_base else [])
+    body = [_table_row(_measure_cells(r, view) + _base_cells(r, with_base)) for r in rows]
     return _Block([f"### {title}", ""] + _table_head(titles), body, [""])
 
 
@@ -98,12 +105,11 @@ def _note_line(note: NoteRow) -> str:
 
 def _blocks(view: ReportView) -> list[_Block]:
     """Every section after the verdict, in reading order."""
-    with_base = view.base_ref is not None
     blocks: list[_Block] = []
     if view.failures:
-        blocks.append(_measure_block("Failing limits", view.failures, with_base))
+        blocks.append(_measure_block("Failing limits", view.failures, view))
     if view.warnings:
-        blocks.append(_measure_block("Warnings", view.warnings, with_base))
+        blocks.append(_measure_block("Warnings", view.warnings, view))
     if view.expired or view.unused:
         head = [] if view.warnings else ["### Warnings", ""]
         blocks.append(_Block(head, [_note_line(n) for n in view.expired + view.unused], [""]))
@@ -115,7 +121,7 @@ def _blocks(view: ReportView) -> list[_Block]:
         body = [_table_row([r.circuit, r.limit, r.item, r.base_margin]) for r in view.fixed]
         head = ["### Fixed by this change", ""] + _table_head(["circuit", "limit", "part", "margin on base"])
         blocks.append(_Block(head, body, [""]))
-    blocks.append(_every_limit_block(view.rows))
+    blocks.append(_every_limit_block(view))
     return blocks
 
 
@@ -125,13 +131,14 @@ def _verdict_lines(view: ReportView) -> list[str]:
     lines = [f"**nodegate: {verdict.headline}**" + (f" {tail}" if tail else "")]
     if verdict.base:
         lines += ["", escape(verdict.base)]
-    return lines + [""]
+    return lines + ["", escape(view.analysis), ""]
 
 
-def _every_limit_block(rows: tuple[Row, ...]) -> _Block:
+def _every_limit_block(view: ReportView) -> _Block:
+    rows = view.rows
     head = [f"<details><summary>Every limit ({len(rows)})</summary>", ""]
-    head += _table_head(["status"] + _MEASURE + ["about"])
-    body = [_table_row([STATUS_WORDS.get(r.status, r.status)] + _measure_cells(r) + [r.about]) for r in rows]
+    head += _table_head(["status"] + _MEASURE + _tolerance_titles(view) + ["about"])
+    body = [_table_row([STATUS_WORDS.get(r.status, r.status)] + _measure_cells(r, view) + [r.about]) for r in rows]
     return _Block(head, body, ["", "</details>", ""])
 
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from checker.findings import Finding, Findings, Outcome, Waiver, WaiverNote
+from checker.findings import Analysis, Finding, Findings, Outcome, Waiver, WaiverNote
 from checker.units import format_temperature, format_value
 
 CAUTION = ("nodegate supports, and does not replace, a qualified engineer's review "
@@ -47,6 +47,35 @@ def format_relative(relative: float) -> str:
     return f"{relative * 100:.1f} %" if math.isfinite(relative) else NO_TEXT
 
 
+def format_fraction(fraction: float | None) -> str:
+    """A Monte Carlo failure fraction as a percentage of samples: `0 %`, `0.05 %`, `12.5 %`."""
+    return "" if fraction is None else f"{fraction * 100:.3g} %"
+
+
+MAX_DRIVERS_SHOWN = 3
+
+
+def drivers_text(finding: Finding) -> str:
+    """`R_TOP 12.3 mV, VBAT 8.10 mV`: the parts whose tolerance band moves the worst margin most."""
+    if not finding.drivers or not finding.outcomes:
+        return ""
+    worst = finding.worst
+    shown = [f"{part} {format_margin(change, worst.unit, worst.absolute)}"
+             for part, change in finding.drivers[:MAX_DRIVERS_SHOWN]]
+    return ", ".join(shown)
+
+
+def analysis_sentence(analysis: Analysis) -> str:
+    """How the margins were found, for the report header (RULES.md, "Tolerance analysis")."""
+    if analysis.mode == "worst-case":
+        return ("Tolerance analysis: worst case. Each margin is the lowest found over the parts' "
+                "tolerance bands; the corner is named beside the case.")
+    if analysis.mode == "monte-carlo":
+        return (f"Tolerance analysis: Monte Carlo, {plural(analysis.samples or 0, 'sample')}, seed {analysis.seed}. "
+                "Each margin is the lowest sample; fails in: the share of samples that fail.")
+    return "Tolerance analysis: nominal values only."
+
+
 def case_label(outcome: Outcome) -> str:
     """The case, with the tolerance corner or sample when there is one."""
     return f"{outcome.case} ({outcome.corner})" if outcome.corner else outcome.case
@@ -73,6 +102,8 @@ class Row:
     base_margin: str
     margin_change: str
     waiver: str
+    drivers: str = ""
+    fails_in: str = ""
 
 
 @dataclass(frozen=True)
@@ -116,6 +147,9 @@ class ReportView:
     rows: tuple[Row, ...]
     base_ref: str | None
     caution: str = CAUTION
+    analysis: str = ""
+    with_drivers: bool = False  # worst-case and Monte Carlo name the parts that drive each margin
+    with_fractions: bool = False  # Monte Carlo gives each limit's failure fraction
 
 
 def waiver_text(waiver: Waiver | None) -> str:
@@ -152,7 +186,8 @@ def make_row(finding: Finding) -> Row:
         limit=finding.limit.id, item=finding.item or "", about=finding.limit.about,
         check=finding.limit.check, severity=finding.limit.severity, **_worst_columns(worst),
         change=change, base_margin=base_margin, margin_change=margin_change,
-        waiver=waiver_text(finding.waiver),
+        waiver=waiver_text(finding.waiver), drivers=drivers_text(finding),
+        fails_in=format_fraction(finding.fail_fraction),
     )
 
 
@@ -222,4 +257,7 @@ def build_view(findings: Findings) -> ReportView:
         fixed=tuple(make_row(f) for f in findings.fixed),
         rows=tuple(rows),
         base_ref=findings.base_ref,
+        analysis=analysis_sentence(findings.analysis),
+        with_drivers=findings.analysis.mode != "nominal",
+        with_fractions=findings.analysis.mode == "monte-carlo",
     )

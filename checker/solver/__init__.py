@@ -31,7 +31,7 @@ def solve_cases(netlists: Sequence[Netlist]) -> list[OperatingPoint]:
     points: list[OperatingPoint | None] = [None] * len(systems)
     groups: dict[bytes, list[int]] = {}
     for position, system in enumerate(systems):
-        if system.nonlinear:
+        if system.nonlinear_devices:
             x, iterations = newton(system)
             points[position] = operating_point(system, x, iterations, "newton")
         else:

@@ -42,7 +42,7 @@ class System:
         return self.matrix.shape[0]
 
     @property
-    def nonlinear(self) -> list[Device]:
+    def nonlinear_devices(self) -> list[Device]:
         return [device for device in self.devices if device.nonlinear]
 
     def fingerprint(self) -> bytes:

@@ -54,7 +54,7 @@ def _components(a: np.ndarray, b: np.ndarray, vertices: int) -> tuple[int, np.nd
     return connected_components(graph, directed=False)
 
 
-def _check_floating(system: System, a, b, kind, part: np.ndarray) -> None:
+def _check_floating(system: System, a: np.ndarray, b: np.ndarray, kind: np.ndarray, part: np.ndarray) -> None:
     """Nets with no DC path to ground; a current pushed into such nets is a cut set."""
     path = kind != EdgeKind.CURRENT
     _, labels = _components(a[path], b[path], system.n_nodes + 1)
@@ -99,7 +99,7 @@ def _check_loops(system: System, a: np.ndarray, b: np.ndarray, part: np.ndarray)
     if a.size <= system.n_nodes + 1 - count:
         return
     loop, loop_nets = _find_loop(a.tolist(), b.tolist())
-    members = [system.netlist.parts[part[i]] for i in loop]
+    members = [system.netlist.parts[p] for p in sorted(int(part[i]) for i in loop)]  # netlist order
     verb = "forms" if len(members) == 1 else "form"
     names = [system.nets[(v + 1) % len(system.nets)] for v in loop_nets]
     through = f"net `{names[0]}`" if len(names) == 1 else f"nets {_join([f'`{n}`' for n in names])}"

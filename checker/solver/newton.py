@@ -45,7 +45,7 @@ def _linearise(system: System, x: np.ndarray) -> tuple[np.ndarray, sp.csc_matrix
     residual = system.matrix @ x - system.rhs
     scale = abs(system.matrix) @ np.abs(x) + np.abs(system.rhs)
     rows, cols, values = [], [], []
-    for device in system.nonlinear:
+    for device in system.nonlinear_devices:
         stamp = device.evaluate(x_ext)
         keep = stamp.rows >= 0
         np.add.at(residual, stamp.rows[keep], stamp.currents[keep])
@@ -62,7 +62,7 @@ def _linearise(system: System, x: np.ndarray) -> tuple[np.ndarray, sp.csc_matrix
 
 def _limit(system: System, x_new: np.ndarray, x_old: np.ndarray) -> np.ndarray:
     new, old = np.append(x_new, 0.0), np.append(x_old, 0.0)
-    for device in system.nonlinear:
+    for device in system.nonlinear_devices:
         new = device.limit(new, old)
     return new[:-1]
 

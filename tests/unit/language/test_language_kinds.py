@@ -2,34 +2,27 @@
 
 import pytest
 from sympy.physics.units import ampere, farad, henry, kelvin, ohm, volt, watt
-from sympy.physics.units.systems.si import dimsys_SI
+from sympy.physics.units.systems.si import SI, dimsys_SI
 
 from checker.kinds import COMMON_PROPS, KINDS, VALUE_UNITS, nearest
 from checker.units import Dim
 
 # Base dimensions in the order of checker.units.Dim: kg, m, s, A, K.
 _BASES = ("mass", "length", "time", "current", "temperature")
+VALUE_DIMS = {name: dim for dim, name in VALUE_UNITS.items()}
 
 
 def sympy_dim(expression) -> Dim:
-    """The exponents of a sympy unit expression over the SI base dimensions (sympy's own tables)."""
-    found = dimsys_SI.get_dimensional_dependencies(expression.dimension if hasattr(expression, "dimension")
-                                                   else expression)
+    """Exponents of a sympy unit expression over the SI base dimensions, from sympy's own tables."""
+    found = dimsys_SI.get_dimensional_dependencies(SI.get_dimensional_expr(expression))
     named = {str(dim.name): exponent for dim, exponent in found.items()}
     return tuple(int(named.get(base, 0)) for base in _BASES)
-
-
-def dimension_of(expression):
-    from sympy.physics.units import Quantity
-    from sympy.physics.units.systems.si import SI
-    return SI.get_dimensional_expr(expression) if not isinstance(expression, Quantity) else expression.dimension
 
 
 @pytest.mark.parametrize("unit_name, sympy_unit", [
     ("ohm", ohm), ("V", volt), ("A", ampere), ("W", watt), ("F", farad), ("H", henry)])
 def test_language_value_units_match_sympy_dimensions(unit_name, sympy_unit):
-    dims = {name: dim for dim, name in VALUE_UNITS.items()}
-    assert dims[unit_name] == sympy_dim(sympy_unit)
+    assert VALUE_DIMS[unit_name] == sympy_dim(sympy_unit)
 
 
 @pytest.mark.parametrize("kind, prop, sympy_expression", [
@@ -39,13 +32,11 @@ def test_language_value_units_match_sympy_dimensions(unit_name, sympy_unit):
     ("switch", "ron", ohm), ("zener", "rz", ohm), ("opamp", "swing", volt), ("bjt", "pmax", watt),
 ])
 def test_language_property_dimensions_match_sympy(kind, prop, sympy_expression):
-    from sympy.physics.units.systems.si import SI
-    assert KINDS[kind].prop(prop).dim == sympy_dim(SI.get_dimensional_expr(sympy_expression))
+    assert KINDS[kind].prop(prop).dim == sympy_dim(sympy_expression)
 
 
 def test_language_common_properties():
-    from sympy.physics.units.systems.si import SI
-    assert COMMON_PROPS["theta_ja"].dim == sympy_dim(SI.get_dimensional_expr(kelvin / watt))
+    assert COMMON_PROPS["theta_ja"].dim == sympy_dim(kelvin / watt)
     assert COMMON_PROPS["tj_max"].temperature
     assert all(KINDS[k].prop("theta_ja") is not None for k in KINDS)
 
@@ -58,8 +49,6 @@ def test_language_table_covers_the_spec_kinds():
     assert KINDS["bjt"].flags == ("npn", "pnp") and KINDS["mosfet"].flags == ("nmos", "pmos")
     assert KINDS["led"].prop("vf").at == KINDS["zener"].prop("vz").at == VALUE_DIMS["A"]
 
-
-VALUE_DIMS = {name: dim for dim, name in VALUE_UNITS.items()}
 
 
 def test_language_nearest_name():

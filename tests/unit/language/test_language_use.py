@@ -131,3 +131,7 @@ def test_language_file_not_utf8(tmp_path):
 def test_language_directory_is_not_a_file(tmp_path):
     (tmp_path / "board/lib.circuit").mkdir(parents=True)
     assert "cannot find" in failure(top(tmp_path, 'use "lib.circuit"')).message
+
+
+def test_language_use_path_with_nul_byte(tmp_path):
+    assert "cannot resolve" in failure(top(tmp_path, 'use "a\x00b.circuit"')).message

@@ -6,7 +6,7 @@ import pytest
 
 from checker.errors import LimitError
 from checker.findings import CircuitResult
-from checker.limits import CaseValues, check_findings, compile_limits, evaluate, evaluate_limits, load_limit_text
+from checker.limits import CaseValues, check_findings, compile_limits, evaluate, evaluate_limits
 
 TODAY = datetime.date(2026, 3, 1)
 COLD, HOT = 253.15, 333.15  # K: -20 degC and 60 degC

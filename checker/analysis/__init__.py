@@ -1,0 +1,11 @@
+"""Tolerance analysis: nominal, worst-case corners and Monte Carlo (RULES.md, "Tolerance analysis").
+
+`tolerances` says which values carry a tolerance and moves them; `sensitivity`
+measures how each tolerance moves each limit's margin; `worstcase` and `montecarlo`
+are the two analyses; `run.analyse` drives them for a check run. docs/analysis.md
+explains the methods and their limits.
+"""
+
+from checker.analysis.run import MODES, analyse
+
+__all__ = ["MODES", "analyse"]

@@ -1,0 +1,95 @@
+"""Monte Carlo analysis: `samples` boards drawn at random, every case solved for each.
+
+Each sample is one board: every toleranced part gets one deviation u x tol with u
+uniform on [−1, 1], independent across parts, and keeps it in every case (a case
+may override `tol`, which scales the same u). The draws come from
+numpy.random.default_rng seeded with (seed, CRC-32 of the circuit name), so the same
+seed gives the same report, and adding a circuit does not change another's draws.
+Per item: the worst margin observed in each case (corner "sample N"), and the share
+of samples in which the item fails in at least one of its cases.
+"""
+
+from __future__ import annotations
+
+import zlib
+from dataclasses import dataclass, field
+from typing import Callable, Sequence
+
+import numpy as np
+
+from checker.analysis.sensitivity import Key, Target, outcomes_at
+from checker.analysis.tolerances import Tolerance, perturbed, toleranced
+from checker.design import Design, Netlist, OperatingPoint
+from checker.findings import Outcome
+from checker.solver import solve_cases
+
+PROGRESS_STEPS = 10  # report progress every tenth of the samples
+
+
+@dataclass
+class Tally:
+    """Per target: the worst outcome seen in each case, and in how many samples it failed."""
+
+    worst: dict[Key, dict[str, Outcome]] = field(default_factory=dict)
+    failed: dict[Key, int] = field(default_factory=dict)
+
+    def add(self, sample: dict[str, dict[Key, Outcome]]) -> None:
+        """One sample's outcomes, case -> target -> outcome."""
+        failing = set()
+        for case, outcomes in sample.items():
+            for key, outcome in outcomes.items():
+                seen = self.worst.setdefault(key, {})
+                if case not in seen or outcome.margin < seen[case].margin:
+                    seen[case] = outcome
+                if not outcome.holds:
+                    failing.add(key)
+        for key in failing:
+            self.failed[key] = self.failed.get(key, 0) + 1
+
+
+def part_names(design: Design) -> tuple[str, ...]:
+    """Every part toleranced in at least one case, in order of first appearance."""
+    return tuple(dict.fromkeys(t.part for netlist in design.netlists for t in toleranced(netlist)))
+
+
+def generator(seed: int, circuit: str) -> np.random.Generator:
+    """The circuit's own reproducible stream (see the module docstring)."""
+    return np.random.default_rng([seed, zlib.crc32(circuit.encode("utf-8"))])
+
+
+def _board(netlists: Sequence[Netlist], tolerances: Sequence[tuple[Tolerance, ...]],
+           draw: dict[str, float]) -> list[Netlist]:
+    return [perturbed(netlist, {t.part: draw[t.part] * t.fraction for t in tols})
+            for netlist, tols in zip(netlists, tolerances)]
+
+
+def monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Sequence[Target],
+                samples: int, seed: int, report: Callable[[str], None]) -> tuple[Tally, int]:
+    """The tally over `samples` boards and the number of samples actually drawn.
+
+    A circuit without toleranced parts has one board only: its nominal one (every
+    sample would be the same), so it is evaluated once and counted as one sample.
+    """
+    netlists = design.netlists
+    active = {n.case: [t for t in targets if t.limit.applies_to(n.case)] for n in netlists}
+    tally = Tally()
+    names = part_names(design)
+    if not names:
+        tally.add({p.case: outcomes_at(active[p.case], p) for p in points})
+        return tally, 1
+    tolerances = [toleranced(netlist) for netlist in netlists]
+    rng = generator(seed, design.name)
+    step = max(samples // PROGRESS_STEPS, 1)
+    for sample in range(1, samples + 1):
+        draw = dict(zip(names, rng.uniform(-1.0, 1.0, len(names))))
+        solved = solve_cases(_board(netlists, tolerances, draw))
+        tally.add({p.case: outcomes_at(active[p.case], p, f"sample {sample}") for p in solved})
+        if sample % step == 0 or sample == samples:
+            report(f"{design.name}: {sample} of {samples} samples")
+    return tally, samples
+
+
+def outcomes_in_order(tally: Tally, key: Key, cases: Sequence[str]) -> list[Outcome]:
+    """The worst outcome per case in the design's case order."""
+    seen = tally.worst.get(key, {})
+    return [seen[case] for case in cases if case in seen]

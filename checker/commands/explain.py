@@ -1,0 +1,131 @@
+"""`nodegate explain LIMIT_ID [--config FILE]`: one limit, case by case, and the parts that drive it.
+
+Runs the configuration's tolerance analysis for this limit only (and only on the
+circuits it applies to), then prints, per circuit and item, a table of every case's
+value, bound, margin and status, the waiver if any, and the sensitivity of the worst
+case's margin to each toleranced part (±1 % on every part's value when the circuit
+has no tolerances), largest first.
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime
+import difflib
+from pathlib import Path
+
+from checker.analysis import analyse
+from checker.analysis.run import targets_of
+from checker.analysis.sensitivity import Swing, swings
+from checker.analysis.tolerances import percent, primary_values, toleranced
+from checker.design import Design
+from checker.errors import ConfigError
+from checker.findings import Finding, Findings, Limit
+from checker.limits import LimitFile, LimitSet, compile_limits
+from checker.pipeline import analysis_of, load_designs, load_limit_files
+from checker.repo.config import find_config, load_config
+from checker.report.view import (NO_TEXT, STATUS_WORDS, analysis_sentence, case_label, format_fraction,
+                                 format_margin, format_number, format_relative, waiver_text)
+
+PLAIN_BAND = 0.01  # ±1 % on every value when a circuit declares no tolerance
+MAX_DRIVER_ROWS = 10
+
+
+def run(args: argparse.Namespace) -> int:
+    config = load_config(find_config(Path.cwd(), args.config))
+    files = load_limit_files(config)
+    limit = find_limit(args.limit_id, files)
+    designs = load_designs(config)
+    compiled = compile_limits(files, designs)
+    mine = LimitSet(tuple(c for c in compiled.limits if c.limit.id == limit.id), compiled.waivers)
+    used = [d for d in designs if any(c.circuit == d.name for c in mine.limits)]
+    findings = analyse(mine, used, datetime.date.today(), analysis_of(config))
+    print("\n".join(explain_lines(limit, findings, used, mine)))
+    return 0
+
+
+def find_limit(limit_id: str, files: list[LimitFile]) -> Limit:
+    """The limit with this id; ConfigError naming the nearest ids when there is none."""
+    limits = {limit.id: limit for file in files for limit in file.limits}
+    if limit_id in limits:
+        return limits[limit_id]
+    near = difflib.get_close_matches(limit_id, list(limits), n=3, cutoff=0.5)
+    hint = f"; did you mean {', '.join(f'`{n}`' for n in near)}?" if near else ""
+    notes = () if near else (f"the configuration's limits have {len(limits)} id(s)",)
+    raise ConfigError(f"no limit with id `{limit_id}`{hint}", None, notes)
+
+
+def _table(rows: list[list[str]], right: set[int]) -> list[str]:
+    """Columns padded to their widest cell; columns in `right` aligned right."""
+    widths = [max(len(row[i]) for row in rows) for i in range(len(rows[0]))]
+    return ["  ".join(cell.rjust(w) if i in right else cell.ljust(w)
+                      for i, (cell, w) in enumerate(zip(row, widths))).rstrip() for row in rows]
+
+
+def header_lines(limit: Limit, findings: Findings) -> list[str]:
+    where = f"{limit.location.path}:{limit.location.line}" if limit.location else limit.source
+    fields = [("severity", limit.severity), ("defined", where), ("check", limit.check),
+              ("each", limit.each), ("where", limit.where),
+              ("cases", ", ".join(limit.cases) if limit.cases is not None else "all"),
+              ("analysis", findings.analysis.mode)]
+    return [f"limit {limit.id}: {limit.about}"] + [f"  {name:<9}{value}" for name, value in fields if value]
+
+
+def case_table(finding: Finding) -> list[str]:
+    rows = [["case", "value", "bound", "margin", "relative", "status"]]
+    for o in finding.outcomes:
+        rows.append([case_label(o), format_number(o.value, o.unit, o.absolute),
+                     format_number(o.bound, o.unit, o.absolute), format_margin(o.margin, o.unit, o.absolute),
+                     format_relative(o.relative), "holds" if o.holds else "fails"])
+    return ["  " + line for line in _table(rows, {1, 2, 3, 4})]
+
+
+def driver_swing(finding: Finding, design: Design, limit_set: LimitSet) -> tuple[Swing, bool]:
+    """The Swing of the finding's worst case at its nominal point; True when the bands are plain ±1 %."""
+    netlist = design.netlist(finding.worst.case)
+    target = next(t for t in targets_of(limit_set, design.name) if t.item.part == finding.item)
+    declared = [t for n in design.netlists for t in toleranced(n)]
+    bands = toleranced(netlist) if declared else primary_values(netlist, PLAIN_BAND)
+    return swings(netlist, [target], bands)[target.key], not declared
+
+
+def driver_lines(finding: Finding, swing: Swing, plain: bool) -> list[str]:
+    worst = finding.worst
+    unit, absolute = worst.unit, worst.absolute
+    order = [i for i in sorted(range(len(swing.tolerances)), key=lambda i: -swing.change[i]) if swing.change[i] > 0]
+    what = "each part's value ±1 % (the circuit declares no tolerance)" if plain else "each part's tolerance band"
+    lines = [f"  parts that drive it (case {worst.case}, margin change over {what}):"]
+    if not order:
+        return lines + ["    none: no toleranced value moves this margin"]
+    rows = [["part", "band", "margin at +band", "margin at \u2212band", "change"]]
+    for i in order[:MAX_DRIVER_ROWS]:
+        band = swing.tolerances[i].fraction
+        rows.append([swing.tolerances[i].part, "\u00b1" + percent(band)[1:],
+                     format_margin(swing.up[i], unit, absolute), format_margin(swing.down[i], unit, absolute),
+                     format_margin(swing.change[i], unit, absolute)])
+    lines += ["    " + line for line in _table(rows, {2, 3, 4})]
+    if len(order) > MAX_DRIVER_ROWS:
+        lines.append(f"    and {len(order) - MAX_DRIVER_ROWS} more that move it less")
+    return lines
+
+
+def finding_lines(finding: Finding, design: Design, limit_set: LimitSet) -> list[str]:
+    item = f", part {finding.item}" if finding.item else ""
+    lines = [f"circuit {finding.circuit}{item}: {STATUS_WORDS.get(finding.status, finding.status)}"]
+    lines += case_table(finding)
+    if finding.fail_fraction is not None:
+        lines.append(f"  fails in {format_fraction(finding.fail_fraction)} of the samples")
+    if finding.waiver is not None:
+        lines.append(f"  waived: {waiver_text(finding.waiver)}")
+    return lines + driver_lines(finding, *driver_swing(finding, design, limit_set))
+
+
+def explain_lines(limit: Limit, findings: Findings, designs: list[Design], limit_set: LimitSet) -> list[str]:
+    """The whole explanation, line by line."""
+    lines = header_lines(limit, findings) + ["", analysis_sentence(findings.analysis)]
+    by_name = {d.name: d for d in designs}
+    for finding in findings.findings:
+        lines += [""] + finding_lines(finding, by_name[finding.circuit], limit_set)
+    if not findings.findings:
+        lines += ["", f"{NO_TEXT} no circuit has a case this limit applies to with its parts fitted"]
+    return lines
