@@ -96,5 +96,41 @@ def main() -> None:
             print(f"{label}: {value:.3g} {unit}", flush=True)
 
 
+def tolerance_netlists() -> tuple:
+    """A small sensor front end (our own scenario): a supply, a divider with a load, two cases."""
+    from checker.language import parse_design
+    from checker.limits import compile_limits, load_limit_text
+    design = parse_design("""circuit sensor "Tolerance benchmark"
+ground gnd
+source   VIN   from vin to gnd  : 5 V, tol = 2%
+resistor R1    from vin to mid  : 10 kohm, tol = 1%
+resistor R2    from mid to gnd  : 10 kohm, tol = 1%
+resistor R3    from mid to out  : 4.7 kohm, tol = 5%
+resistor R4    from out to gnd  : 22 kohm, tol = 1%
+load     LOAD  from out to gnd  : 50 uA, tol = 10%
+case low  : VIN = 4.5 V
+case high : VIN = 5.5 V
+""", "sensor.circuit")
+    limits = load_limit_text("limits:\n  - id: out-range\n    about: output in range\n"
+                             "    check: voltage(out) in 1 V .. 3 V\n", "limits.yaml")
+    return design, compile_limits([limits], [design])
+
+
+def bench_tolerances(samples: int = 200) -> Iterator[Figure]:
+    """Worst-case corners and a Monte Carlo run of a six-part, two-case circuit."""
+    import datetime
+    from checker.analysis import analyse
+    from checker.findings import Analysis
+    design, limit_set = tolerance_netlists()
+    today = datetime.date(2030, 1, 1)
+    worst = _seconds(lambda: analyse(limit_set, [design], today, Analysis("worst-case")))
+    sampled = _seconds(lambda: analyse(limit_set, [design], today, Analysis("monte-carlo", samples, 1)))
+    yield "worst-case analysis: 6 toleranced parts, 2 cases", worst, "s"
+    yield f"monte-carlo analysis: {samples} samples, 2 cases", sampled, "s"
+    yield "time per Monte Carlo sample (2 cases solved)", 1e3 * sampled / samples, "ms"
+
+
+BENCHMARKS.append(bench_tolerances)
+
 if __name__ == "__main__":
     main()

@@ -94,7 +94,14 @@ def render(error: NodegateError) -> str:
     return "\n".join(lines)
 
 
-def did_you_mean(word: str, choices) -> str:
-    """` (did you mean `x`?)` for the closest of `choices` to a mistyped `word`, else ""."""
-    found = difflib.get_close_matches(word, [str(c) for c in choices], n=1, cutoff=0.6)
-    return f" (did you mean `{found[0]}`?)" if found else ""
+
+def nearest(word: str, choices) -> str | None:
+    """The choice most like a mistyped `word`, for "did you mean" hints; None when nothing is close."""
+    found = difflib.get_close_matches(str(word), [str(c) for c in choices], n=1, cutoff=0.6)
+    return found[0] if found else None
+
+
+def did_you_mean(word: str, choices) -> tuple[str, ...]:
+    """A one-note tuple `did you mean `x`?` when some choice is close, else ()."""
+    close = nearest(word, choices)
+    return (f"did you mean `{close}`?",) if close else ()

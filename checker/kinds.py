@@ -8,7 +8,6 @@ are kelvin. The table follows LANGUAGE.md, "Part kinds (core)".
 
 from __future__ import annotations
 
-import difflib
 from dataclasses import dataclass, field
 from typing import Mapping
 
@@ -111,8 +110,3 @@ KINDS: dict[str, Kind] = {k.name: k for k in (
          {"gain": Prop(DIMENSIONLESS), "swing": Prop(VOLT)}),
 )}
 
-
-def nearest(word: str, choices) -> str | None:
-    """The closest of `choices` to a misspelt `word`, for 'did you mean' hints."""
-    found = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.6)
-    return found[0] if found else None

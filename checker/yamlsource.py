@@ -12,13 +12,12 @@ points at the offending token, whether the string was written plain, quoted or a
 from __future__ import annotations
 
 import bisect
-import difflib
 from pathlib import Path
 from typing import Iterable
 
 import yaml
 
-from checker.errors import ConfigError, Location, NodegateError
+from checker.errors import ConfigError, Location, NodegateError, did_you_mean
 
 MAX_DEPTH = 32  # nesting levels of mappings and lists
 MAX_NODES = 100_000  # scalars, mappings and lists in one document
@@ -239,18 +238,6 @@ def load_yaml(path: Path, max_bytes: int = 1_000_000, error: type[NodegateError]
 def location_of(value: object, fallback: Location | None) -> Location | None:
     """The location a loaded value remembers, or `fallback` (numbers, dates and booleans remember none)."""
     return getattr(value, "location", None) or fallback
-
-
-def nearest(word: str, choices: Iterable[str]) -> str | None:
-    """The choice most like `word`, for "did you mean" notes; None when nothing is close."""
-    found = difflib.get_close_matches(str(word), [str(c) for c in choices], n=1, cutoff=0.6)
-    return found[0] if found else None
-
-
-def did_you_mean(word: str, choices: Iterable[str]) -> tuple[str, ...]:
-    """A one-note tuple `did you mean `x`?` when some choice is close, else ()."""
-    close = nearest(word, choices)
-    return (f"did you mean `{close}`?",) if close else ()
 
 
 def check_keys(mapping: LocatedDict, allowed: Iterable[str], what: str,

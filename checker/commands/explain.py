@@ -66,9 +66,9 @@ def header_lines(limit: Limit, findings: Findings) -> list[str]:
     where = f"{limit.location.path}:{limit.location.line}" if limit.location else limit.source
     fields = [("severity", limit.severity), ("defined", where), ("check", limit.check),
               ("each", limit.each), ("where", limit.where),
-              ("cases", ", ".join(limit.cases) if limit.cases is not None else "all"),
-              ("analysis", findings.analysis.mode)]
-    return [f"limit {limit.id}: {limit.about}"] + [f"  {name:<9}{value}" for name, value in fields if value]
+              ("cases", ", ".join(limit.cases) if limit.cases is not None else "all")]
+    lines = [f"limit {limit.id}: {limit.about}"] + [f"  {name:<10}{value}" for name, value in fields if value]
+    return lines + ["", analysis_sentence(findings.analysis)]
 
 
 def case_table(finding: Finding) -> list[str]:
@@ -122,7 +122,7 @@ def finding_lines(finding: Finding, design: Design, limit_set: LimitSet) -> list
 
 def explain_lines(limit: Limit, findings: Findings, designs: list[Design], limit_set: LimitSet) -> list[str]:
     """The whole explanation, line by line."""
-    lines = header_lines(limit, findings) + ["", analysis_sentence(findings.analysis)]
+    lines = header_lines(limit, findings)
     by_name = {d.name: d for d in designs}
     for finding in findings.findings:
         lines += [""] + finding_lines(finding, by_name[finding.circuit], limit_set)

@@ -30,8 +30,8 @@ def run(args: argparse.Namespace) -> int:
     if args.case is not None:
         netlists = tuple(n for n in netlists if n.case == args.case)
         if not netlists:
-            raise DesignError(f"`{design.path}` has no case `{args.case}`{did_you_mean(args.case, design.cases)}; "
-                              f"its cases are {', '.join(design.cases)}")
+            raise DesignError(f"`{design.path}` has no case `{args.case}`",
+                              notes=did_you_mean(args.case, design.cases) + (f"its cases: {', '.join(design.cases)}",))
     points = solve_cases(netlists)
     if args.format == "json":
         print(render_solve_json(design.name, points))

@@ -11,7 +11,8 @@ from dataclasses import replace
 
 from checker.design import Netlist, Part
 from checker.errors import DesignError, UnitError
-from checker.kinds import KINDS, nearest
+from checker.errors import nearest
+from checker.kinds import KINDS
 from checker.language.expressions import Scope, dim_text, evaluate
 from checker.language.parts import check_complete, primary_value, property_value
 from checker.language.syntax import Case, Override, declared

@@ -15,7 +15,7 @@ from typing import Mapping
 from lark import Tree
 
 from checker.errors import DesignError, Location, UnitError
-from checker.kinds import nearest
+from checker.errors import nearest
 from checker.language.syntax import Expr
 from checker.units import (
     DIMENSIONLESS, KELVIN, PREFIXES, UNITS, UNPREFIXED, ZERO_CELSIUS, Quantity, dim_div,

@@ -9,7 +9,8 @@ from __future__ import annotations
 
 from checker.design import Part
 from checker.errors import DesignError, Location, UnitError
-from checker.kinds import KINDS, VALUE_UNITS, Kind, nearest
+from checker.errors import nearest
+from checker.kinds import KINDS, VALUE_UNITS, Kind
 from checker.language.expressions import Scope, dim_text, evaluate
 from checker.language.syntax import Expr, Name, PartStatement, Prop
 from checker.units import dim_name

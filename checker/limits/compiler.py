@@ -14,12 +14,11 @@ from dataclasses import dataclass
 from typing import Callable, Mapping
 
 from checker.design import Design, OperatingPoint, Part
-from checker.errors import LimitError
+from checker.errors import LimitError, did_you_mean
 from checker.limits import margins
 from checker.limits.syntax import Binary, Call, Compare, InRange, Locator, Logic, Not, Num, Ref, Unary
 from checker.limits.vocabulary import FUNCTIONS, MEASURES, PRIMARY, PROPERTIES, property_type
 from checker.units import DIMENSIONLESS, KELVIN, Dim, dim_div, dim_mul, dim_name, dim_pow, parse_unit
-from checker.yamlsource import did_you_mean
 
 
 class Unresolved(LimitError):

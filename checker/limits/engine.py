@@ -17,14 +17,13 @@ from dataclasses import dataclass
 from typing import Callable, Iterable, Mapping, Sequence
 
 from checker.design import Design, OperatingPoint, Part
-from checker.errors import LimitError, Location
+from checker.errors import LimitError, Location, did_you_mean
 from checker.findings import CircuitResult, Finding, Findings, Limit, Outcome, Waiver, WaiverNote
 from checker.limits.compiler import Absent, CaseValues, DeclaredValues, NoMatch, Scope, Unresolved, compile_condition
 from checker.limits.files import LimitFile
 from checker.limits.margins import Verdict
 from checker.limits.syntax import Locator, parse_expression
 from checker.limits.waivers import apply_waivers
-from checker.yamlsource import did_you_mean
 
 
 @dataclass(frozen=True)

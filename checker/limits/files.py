@@ -12,10 +12,10 @@ import re
 from dataclasses import dataclass
 from pathlib import Path
 
-from checker.errors import LimitError, Location
+from checker.errors import LimitError, Location, did_you_mean
 from checker.findings import Limit, Waiver
 from checker.limits.vocabulary import KINDS
-from checker.yamlsource import (LocatedDict, check_keys, did_you_mean, expect_list, expect_mapping,
+from checker.yamlsource import (LocatedDict, check_keys, expect_list, expect_mapping,
                                 expect_text, load_yaml, load_yaml_text, location_of)
 
 LIMIT_KEYS = ("id", "about", "check", "each", "where", "cases", "severity")

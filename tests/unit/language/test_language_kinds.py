@@ -4,7 +4,8 @@ import pytest
 from sympy.physics.units import ampere, farad, henry, kelvin, ohm, volt, watt
 from sympy.physics.units.systems.si import SI, dimsys_SI
 
-from checker.kinds import COMMON_PROPS, KINDS, VALUE_UNITS, nearest
+from checker.errors import nearest
+from checker.kinds import COMMON_PROPS, KINDS, VALUE_UNITS
 from checker.units import Dim
 
 # Base dimensions in the order of checker.units.Dim: kg, m, s, A, K.

@@ -4,9 +4,8 @@ import datetime
 
 import pytest
 
-from checker.errors import ConfigError, LimitError
-from checker.yamlsource import (LocatedDict, LocatedList, LocatedStr, check_keys, load_yaml, load_yaml_text,
-                                nearest)
+from checker.errors import ConfigError, LimitError, nearest
+from checker.yamlsource import LocatedDict, LocatedList, LocatedStr, check_keys, load_yaml, load_yaml_text
 
 DOC = """\
 top:
