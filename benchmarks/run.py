@@ -96,7 +96,7 @@ def main() -> None:
             print(f"{label}: {value:.3g} {unit}", flush=True)
 
 
-def tolerance_netlists() -> tuple:
+def tolerance_circuit() -> tuple:
     """A small sensor front end (our own scenario): a supply, a divider with a load, two cases."""
     from checker.language import parse_design
     from checker.limits import compile_limits, load_limit_text
@@ -121,7 +121,7 @@ def bench_tolerances(samples: int = 200) -> Iterator[Figure]:
     import datetime
     from checker.analysis import analyse
     from checker.findings import Analysis
-    design, limit_set = tolerance_netlists()
+    design, limit_set = tolerance_circuit()
     today = datetime.date(2030, 1, 1)
     worst = _seconds(lambda: analyse(limit_set, [design], today, Analysis("worst-case")))
     sampled = _seconds(lambda: analyse(limit_set, [design], today, Analysis("monte-carlo", samples, 1)))
