@@ -6,5 +6,4 @@ from setuptools import find_packages, setup
 setup(
     packages=find_packages(include=["checker", "checker.*"]) + ["checker.rules"],
     package_dir={"checker.rules": "rules"},
-    package_data={"checker.rules": ["*.yaml"]},
 )
