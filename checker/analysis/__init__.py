@@ -6,6 +6,6 @@ are the two analyses; `run.analyse` drives them for a check run. docs/analysis.m
 explains the methods and their limits.
 """
 
-from checker.analysis.run import MODES, analyse
+from checker.analysis.run import analyse
 
-__all__ = ["MODES", "analyse"]
+__all__ = ["analyse"]

@@ -23,7 +23,6 @@ from checker.limits.engine import LimitSet
 from checker.limits.waivers import apply_waivers
 from checker.solver import solve_cases
 
-MODES = ("nominal", "worst-case", "monte-carlo")
 Drivers = tuple[tuple[str, float], ...]
 
 

@@ -118,6 +118,7 @@ class Device:
         self.first_branch = first_branch
         self.ambient = ambient  # K
         self.n_branches = 0
+        self.scale = 1.0  # source stepping: fraction of built-in setpoints (V, A; W as its square) applied
 
     @classmethod
     def describe(cls, part: Part) -> str:
@@ -139,6 +140,19 @@ class Device:
     def evaluate(self, x: np.ndarray) -> NonlinearStamp:
         """Nonlinear kinds only: residual entries and Jacobian at the guess `x`."""
         raise NotImplementedError
+
+    def first_guess(self, x: np.ndarray) -> NonlinearStamp:
+        """The stamp for the first linear solve, which sets Newton's starting point.
+
+        By default the device at `x` (all zeros); a kind whose behaviour at 0 V would
+        lead Newton to a non-physical root (a constant-power load) stands aside here.
+        """
+        return self.evaluate(x)
+
+    def trouble(self, x: np.ndarray) -> list[tuple[Part, str]]:
+        """Parts whose converged state lies outside what their model describes, each with a
+        plain-words reason; the solver turns the first into NoSolutionError."""
+        return []
 
     def limit(self, x_new: np.ndarray, x_old: np.ndarray) -> np.ndarray:
         """Nonlinear kinds may shorten a Newton step here (junction-voltage limiting).
