@@ -87,13 +87,41 @@ def bench_cases(side: int = 100, count: int = 100) -> Iterator[Figure]:
     yield "time per case with a shared factorisation", 1e3 * shared / count, "ms"
 
 
-BENCHMARKS: list[Callable[[], Iterator[Figure]]] = [bench_large_grid, bench_cases]
+def lit_grid_netlist(side: int) -> Netlist:
+    """A lighting panel of our own: a side x side copper mesh (Ω per segment) fed at one corner by a
+    5 V regulator from 12 V, with an LED and its 330 Ω resistor from every mesh node to ground."""
+    parts = [Part(f"RH{r}_{c}", "resistor", (("from", _net(side, r, c)), ("to", _net(side, r, c + 1))), 0.05, "ohm")
+             for r in range(side) for c in range(side - 1)]
+    parts += [Part(f"RV{r}_{c}", "resistor", (("from", _net(side, r, c)), ("to", _net(side, r + 1, c))), 0.05, "ohm")
+              for r in range(side - 1) for c in range(side)]
+    for node in range(side * side):
+        parts.append(Part(f"R{node}", "resistor", (("from", f"g{node}"), ("to", f"k{node}")), 330.0, "ohm"))
+        parts.append(Part(f"D{node}", "led", (("from", f"k{node}"), ("to", "gnd"))))
+    parts.append(Part("V1", "source", (("from", "in"), ("to", "gnd")), 12.0, "V"))
+    parts.append(Part("U1", "regulator", (("in", "in"), ("out", "g0"), ("gnd", "gnd")),
+                      props={"vout": 5.0, "dropout": 0.3, "iq": 1e-3}))
+    return Netlist("panel", "default", 298.15, "gnd", tuple(parts))
+
+
+def bench_nonlinear(sides: tuple[int, ...] = (32, 100)) -> Iterator[Figure]:
+    """Newton-Raphson on thousands of parts, a quarter of them LEDs."""
+    for side in sides:
+        netlist = lit_grid_netlist(side)
+        start = time.perf_counter()
+        point = solve(netlist)
+        seconds = time.perf_counter() - start
+        yield f"solve() on a {side}x{side} LED panel ({len(netlist.parts):,} parts, {side * side:,} LEDs)", seconds, "s"
+        yield f"  Newton iterations ({point.strategy})", point.iterations, ""
+        yield "  time per Newton iteration", 1e3 * seconds / point.iterations, "ms"
+
+
+BENCHMARKS: list[Callable[[], Iterator[Figure]]] = [bench_large_grid, bench_cases, bench_nonlinear]
 
 
 def main() -> None:
     for benchmark in BENCHMARKS:
         for label, value, unit in benchmark():
-            print(f"{label}: {value:.3g} {unit}", flush=True)
+            print(f"{label}: {value:.3g} {unit}".rstrip(), flush=True)
 
 
 def tolerance_circuit() -> tuple:

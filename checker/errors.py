@@ -8,6 +8,7 @@ with `render` and turns them into exit code 2. Anything else escaping is a bug
 from __future__ import annotations
 
 import difflib
+import re
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -78,19 +79,46 @@ def _source_line(location: Location) -> str | None:
     return None
 
 
+# Shown source lines are cut to this many characters around the column, so a
+# minified or generated file cannot flood a CI log with one megabyte-long line.
+SHOWN_WIDTH = 120
+# Characters that would drive the terminal rather than print: C0/C1 controls (escape
+# sequences, carriage returns) and the bidirectional overrides that make text read
+# differently from what it is. Each is shown as one `?`, so columns stay right.
+_UNPRINTABLE = re.compile("[\x00-\x08\x0a-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
+
+
+def printable(text: str) -> str:
+    """`text` safe to print on a terminal: control characters become `?`, tabs stay."""
+    return _UNPRINTABLE.sub("?", text)
+
+
+def _window(text: str, column: int) -> tuple[str, int]:
+    """At most SHOWN_WIDTH characters of `text` around `column` (1-based), and the column within them."""
+    if len(text) <= SHOWN_WIDTH:
+        return text, column
+    start = min(max(column - 1 - SHOWN_WIDTH // 2, 0), len(text) - SHOWN_WIDTH)
+    shown = text[start:start + SHOWN_WIDTH]
+    if start > 0:
+        shown = "…" + shown[1:]
+    if start + SHOWN_WIDTH < len(text):
+        shown = shown[:-1] + "…"
+    return shown, column - start
+
+
 def render(error: NodegateError) -> str:
     """`path:line:col: error: message`, then the source line and a caret under the column."""
     loc = error.location
     if loc is None:
-        lines = [f"nodegate: error: {error.message}"]
+        lines = [f"nodegate: error: {printable(error.message)}"]
     else:
-        lines = [f"{loc}: error: {error.message}"]
+        lines = [f"{printable(str(loc))}: error: {printable(error.message)}"]
         text = _source_line(loc)
         if text is not None:
-            shown = text.expandtabs(1)
+            shown, column = _window(printable(text).expandtabs(1), loc.column)
             lines.append(f"  {shown}")
-            lines.append("  " + " " * max(loc.column - 1, 0) + "^")
-    lines.extend(f"  note: {note}" for note in error.notes)
+            lines.append("  " + " " * max(column - 1, 0) + "^")
+    lines.extend(f"  note: {printable(note)}" for note in error.notes)
     return "\n".join(lines)
 
 

@@ -134,6 +134,9 @@ def format_value(value: float, symbol: str, digits: int = 3) -> str:
     if value == 0:
         return f"0 {symbol}".strip()
     rounded = float(f"{value:.{digits - 1}e}")  # round first so 999.7 becomes 1.00 k, not 1000
+    if not _ENG_PREFIXES[-1][0] <= abs(rounded) < 1000 * _ENG_PREFIXES[0][0]:
+        # below the smallest prefix or past the largest: plain scientific notation
+        return f"{rounded:.{digits - 1}e} {symbol}".rstrip()
     scale, prefix = next(((s, p) for s, p in _ENG_PREFIXES if abs(rounded) >= s), _ENG_PREFIXES[-1])
     scaled = rounded / scale
     decimals = max(digits - 1 - int(math.floor(math.log10(abs(scaled)))), 0)

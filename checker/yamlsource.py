@@ -182,6 +182,8 @@ class _Builder:
             value = self.loader.construct_object(node, deep=True)
         except yaml.YAMLError as exc:
             raise self.error(f"cannot read this value: {getattr(exc, 'problem', exc)}", self.where(node)) from None
+        except (ValueError, OverflowError) as exc:  # a date like 2030-13-01 passes the resolver, not the calendar
+            raise self.error(f"cannot read this value: {exc}", self.where(node)) from None
         if isinstance(value, str):
             return LocatedStr(value, self.source, node.start_mark.index, node.end_mark.index, node.style)
         return value
@@ -227,7 +229,7 @@ def load_yaml(path: Path, max_bytes: int = 1_000_000, error: type[NodegateError]
         size = Path(path).stat().st_size
         if size > max_bytes:
             raise error(f"file is {size} bytes, more than the {max_bytes} allowed", Location(name, 1, 1))
-        text = Path(path).read_bytes().decode("utf-8")
+        text = Path(path).read_bytes().decode("utf-8").removeprefix("\ufeff")  # columns count from the text
     except OSError as exc:
         raise error(f"cannot read `{name}`: {exc.strerror or exc}", None) from None
     except UnicodeDecodeError as exc:

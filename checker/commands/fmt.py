@@ -2,18 +2,16 @@
 
 Every file is read and formatted before any is written, so one file that does not
 parse stops the run (exit 2 through `cli.main`) with nothing changed. Each rewrite
-is atomic: a temporary file in the same folder, then `os.replace`, so a reader sees
-the old file or the new one, never half of one. The file keeps its permissions.
+is atomic and keeps the file's permissions (`checker.files.write_atomic`).
 """
 
 from __future__ import annotations
 
 import argparse
-import os
-import tempfile
 from pathlib import Path
 
 from checker.errors import DesignError
+from checker.files import write_atomic
 from checker.language.files import read_source
 from checker.language.format import format_circuit
 
@@ -29,7 +27,7 @@ def run(args: argparse.Namespace) -> int:
         if args.check:
             print(f"would reformat {path}")
         else:
-            _replace(path, formatted)
+            write_atomic(path, formatted)
             print(f"formatted {path}")
     return 1 if args.check and changed else 0
 
@@ -41,23 +39,3 @@ def _on_disk(path: Path) -> bytes:
     except OSError as error:
         raise DesignError(f"cannot read `{path}`: {error.strerror or error}") from None
 
-
-def _replace(path: Path, text: str) -> None:
-    """Write `text` to `path` atomically, keeping the file's mode; a symlink stays a link."""
-    path = path.resolve()
-    try:
-        mode = path.stat().st_mode & 0o7777
-        handle = tempfile.NamedTemporaryFile("w", encoding="utf-8", newline="", dir=path.parent,
-                                             prefix=f".{path.name}.", suffix=".tmp", delete=False)
-    except OSError as error:
-        raise DesignError(f"cannot write `{path}`: {error.strerror or error}") from None
-    try:
-        with handle:
-            handle.write(text)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.chmod(handle.name, mode)
-        os.replace(handle.name, path)
-    except OSError as error:
-        Path(handle.name).unlink(missing_ok=True)
-        raise DesignError(f"cannot write `{path}`: {error.strerror or error}") from None

@@ -22,20 +22,30 @@ How to add a kind
    A linear two-terminal kind only needs `elements()` on `LinearTwoTerminal`.
 4. Nonlinear kinds set `nonlinear = True` and implement `evaluate(x)`, returning a
    `NonlinearStamp` of residual currents leaving each net into the device and their
-   derivatives for the whole group in one numpy pass; `limit(x_new, x_old)` may
-   shorten a Newton step (junction-voltage limiting). `x` always carries a trailing
-   0.0 so that index -1 reads ground.
+   derivatives for the whole group in one numpy pass (`checker.devices.smooth.stamp`
+   builds one from per-part arrays); the triplet layout must not depend on `x`.
+   `limit(x_new, x_old)` may shorten a Newton step (junction-voltage limiting);
+   `first_guess(x)` may replace the stamp of the linear solve that starts Newton;
+   `trouble(x)` names parts whose converged state lies outside their model; built-in
+   setpoints follow `self.scale` during source stepping (volts and amps times the
+   scale, watts times its square). `x` always carries a trailing 0.0 so that index
+   -1 reads ground. docs/models.md describes every model.
 5. Register the class in `DEVICES` below and add a test file under tests/unit/solver/.
 """
 
 from __future__ import annotations
 
+from checker.devices.amplifiers import Opamp
 from checker.devices.base import Device
+from checker.devices.diodes import Diode, Led, Zener
 from checker.devices.passives import Capacitor, Inductor, Resistor, Switch
+from checker.devices.power import Converter, Regulator
 from checker.devices.sources import Load, Source
+from checker.devices.transistors import Bjt, Mosfet
 
 DEVICES: dict[str, type[Device]] = {
-    cls.kind: cls for cls in (Resistor, Capacitor, Inductor, Switch, Source, Load)
+    cls.kind: cls for cls in (Resistor, Capacitor, Inductor, Switch, Source, Load,
+                              Diode, Led, Zener, Bjt, Mosfet, Regulator, Converter, Opamp)
 }
 
 __all__ = ["DEVICES", "Device"]

@@ -5,7 +5,8 @@ solved exactly (see `checker.devices.junction.current`). Is is given as `isat`, 
 derived from `vf = V at I` at 25 degC (accounting for `rseries`), or defaults to
 1e-14 A for a diode (common practice for a small-signal silicon diode) and to the
 value that gives 2.0 V at 10 mA for an LED (common practice for a red LED). Is
-follows the ambient by the silicon temperature law, Vt = k T / q.
+follows the ambient by the silicon temperature law, Vt = k T / q; for an LED the
+band gap of that law is set so that its forward voltage falls by 2 mV/K.
 
 A zener adds a breakdown branch in antiparallel: a second junction with ideality 1
 in series with `rz`, whose saturation current is set so that it carries the test
@@ -29,6 +30,7 @@ from checker.errors import DesignError
 from checker.units import format_value
 
 BREAKDOWN_IDEALITY = 1.0  # of the zener's breakdown branch; `rz` sets its slope beyond the knee
+GUESS_CURRENT = 10e-3  # A: forward current at which diodes and LEDs are linearised for Newton's first guess
 
 
 @dataclass(frozen=True)
@@ -57,8 +59,12 @@ class Diode(Device):
         rseries = prop_array(self.parts, "rseries", 0.0)
         reject(~(rseries >= 0), self.parts, lambda p: f"{self.kind} {p.name} has a negative rseries")
         log_is_ref = np.array([self._log_isat_ref(p, n, r) for p, n, r in zip(self.parts, ideality, rseries)])
-        self.branches = [Branch(1.0, junction.log_isat_at(log_is_ref, ideality, ambient),
-                                ideality * junction.thermal_voltage(ambient), rseries)]
+        log_is = junction.log_isat_at(log_is_ref, ideality, ambient, self.band_gap(log_is_ref, ideality))
+        self.branches = [Branch(1.0, log_is, ideality * junction.thermal_voltage(ambient), rseries)]
+
+    def band_gap(self, log_is_ref: np.ndarray, ideality: np.ndarray) -> float | np.ndarray:
+        """Eg (eV) of the temperature law: silicon's."""
+        return junction.EG_SILICON
 
     @classmethod
     def describe(cls, part: Part) -> str:
@@ -112,6 +118,21 @@ class Diode(Device):
         i, g = self._law(self._voltage(x))
         return two_terminal_stamp(self.nodes[:, 0], self.nodes[:, 1], i, g)
 
+    def first_guess(self, x: np.ndarray) -> NonlinearStamp:
+        """The forward junction's tangent at GUESS_CURRENT: a small battery with its slope resistance
+        and rseries. Open at 0 V, a diode feeding a load would leave that load's net at any voltage;
+        on the tangent, the junction's current at the first guess stays near GUESS_CURRENT."""
+        forward = self.branches[0]
+        isat = np.exp(forward.log_is)
+        v0 = forward.nvt * np.log1p(GUESS_CURRENT / isat) + GUESS_CURRENT * forward.rseries
+        g0 = 1.0 / (forward.nvt / (GUESS_CURRENT + isat) + forward.rseries)
+        v = self._voltage(x)
+        i, g = GUESS_CURRENT + g0 * (v - v0), g0 + junction.GMIN
+        for b in self.branches[1:]:
+            ib, gb = junction.current(b.sign * v, b.log_is, b.nvt, b.rseries)
+            i, g = i + b.sign * ib, g + gb
+        return two_terminal_stamp(self.nodes[:, 0], self.nodes[:, 1], i, g)
+
     def pin_currents(self, x: np.ndarray) -> np.ndarray:
         i, _ = self._law(self._voltage(x))
         return np.column_stack([i, -i])
@@ -140,6 +161,18 @@ class Led(Diode):
     kind = "led"
     default_ideality = 2.0
     default_point = (2.0, 10e-3)
+    TEMPCO = -2e-3  # V/K of the forward voltage at 10 mA (common practice for indicator LEDs; from memory)
+
+    def band_gap(self, log_is_ref: np.ndarray, ideality: np.ndarray) -> np.ndarray:
+        """The Eg (eV) that makes the junction voltage at 10 mA drift by TEMPCO at 25 degC.
+
+        Silicon's 1.11 eV would make a 2 V junction's voltage rise with temperature.
+        From the law in `log_isat_at`, at fixed current dV/dT = (V0 - XTI Vt0 - Eg) / T0,
+        so Eg = V0 - XTI Vt0 - TEMPCO T0.
+        """
+        vt0 = junction.thermal_voltage(junction.T_REFERENCE)
+        v0 = ideality * vt0 * np.log1p(10e-3 / np.exp(log_is_ref))
+        return v0 - junction.XTI_SILICON * vt0 - self.TEMPCO * junction.T_REFERENCE
 
     @classmethod
     def describe(cls, part: Part) -> str:
@@ -166,3 +199,7 @@ class Zener(Diode):
     @classmethod
     def describe(cls, part: Part) -> str:
         return f"the zener diode {part.name}"
+
+    def first_guess(self, x: np.ndarray) -> NonlinearStamp:
+        """Open, as at 0 V: a zener mostly works in breakdown, which a forward tangent would hide."""
+        return self.evaluate(x)

@@ -25,17 +25,18 @@ def thermal_voltage(temperature: float | np.ndarray) -> float | np.ndarray:
     return BOLTZMANN * temperature / ELEMENTARY_CHARGE
 
 
-def log_isat_at(log_is_ref: np.ndarray, ideality: np.ndarray, temperature: float) -> np.ndarray:
-    """ln Is(T) from ln Is(25 degC).
+def log_isat_at(log_is_ref: np.ndarray, ideality: np.ndarray, temperature: float,
+                band_gap: float | np.ndarray = EG_SILICON) -> np.ndarray:
+    """ln Is(T) from ln Is(25 degC); `band_gap` in eV.
 
     Is(T) = Is(T0) (T/T0)^(XTI/n) exp(Eg/(n Vt(T)) (T/T0 - 1)), with T0 = 298.15 K,
-    Eg = 1.11 eV and XTI = 3 for silicon (Sze & Ng, "Physics of Semiconductor
+    and for silicon Eg = 1.11 eV and XTI = 3 (Sze & Ng, "Physics of Semiconductor
     Devices", 3rd ed., 2007, ch. 2; Massobrio & Antognetti, "Semiconductor Device
     Modeling", 2nd ed., 1993, ch. 1 — chapters and edition from memory).
     """
     ratio = temperature / T_REFERENCE
     return (log_is_ref + (XTI_SILICON / ideality) * np.log(ratio)
-            + EG_SILICON / (ideality * thermal_voltage(temperature)) * (ratio - 1.0))
+            + band_gap / (ideality * thermal_voltage(temperature)) * (ratio - 1.0))
 
 
 def log_isat_from_point(volts: np.ndarray, amps: np.ndarray, nvt: np.ndarray, rseries: np.ndarray) -> np.ndarray:

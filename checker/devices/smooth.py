@@ -50,3 +50,11 @@ def two_terminal_stamp(a: np.ndarray, b: np.ndarray, i: np.ndarray, g: np.ndarra
     rows = np.column_stack([a, b])
     slopes = np.stack([np.column_stack([g, -g]), np.column_stack([-g, g])], axis=1)
     return stamp(rows, np.column_stack([i, -i]), rows, slopes)
+
+
+def combine(*stamps: NonlinearStamp) -> NonlinearStamp:
+    """Several stamps of one device as one."""
+    return NonlinearStamp(np.concatenate([s.rows for s in stamps]), np.concatenate([s.currents for s in stamps]),
+                          Triplets(np.concatenate([s.jacobian.rows for s in stamps]),
+                                   np.concatenate([s.jacobian.cols for s in stamps]),
+                                   np.concatenate([s.jacobian.values for s in stamps])))

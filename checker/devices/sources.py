@@ -6,10 +6,14 @@ Sign convention (LANGUAGE.md): a voltage source fixes v(from) - v(to); a current
 
 from __future__ import annotations
 
+from typing import Sequence
+
 import numpy as np
 
 from checker.design import Part
-from checker.devices.base import LinearTwoTerminal, Role
+from checker.devices.base import Edges, EdgeKind, LinearTwoTerminal, NonlinearStamp, Role
+from checker.devices.power import V_MIN, constant_power
+from checker.devices.smooth import two_terminal_stamp
 from checker.errors import DesignError
 from checker.units import format_value
 
@@ -35,16 +39,28 @@ class Source(LinearTwoTerminal):
 
 
 class Load(LinearTwoTerminal):
-    """A consumer drawing a fixed current (A) or behaving as a resistance (Ω).
+    """A consumer drawing a fixed current (A), behaving as a resistance (Ω), or drawing a
+    constant power (W).
 
-    Constant-power loads (W) are nonlinear and not handled here yet.
+    A constant-power load draws I = P / V from `from` to `to`; below V_MIN (0.1 V) it
+    continues along the tangent of P / V (see `checker.devices.power.constant_power`),
+    and an operating point found there is reported as a supply that cannot deliver
+    the power. Such loads make the netlist nonlinear; they stand aside (draw nothing)
+    in the linear solve that gives Newton-Raphson its first guess, so that it finds
+    the high-voltage root of P = V I, the one a real supply settles at.
     """
 
     kind = "load"
 
+    def __init__(self, parts: Sequence[Part], nodes: np.ndarray, first_branch: int, ambient: float):
+        super().__init__(parts, nodes, first_branch, ambient)
+        self.constant = np.array([part.value_unit == "W" for part in self.parts], dtype=bool)
+        self.power = np.where(self.constant, self.value, 0.0)[self.constant]
+        self.nonlinear = bool(self.constant.any())
+
     @classmethod
     def describe(cls, part: Part) -> str:
-        what = "current load" if part.value_unit == "A" else "load"
+        what = {"A": "current load", "W": "constant-power load"}.get(part.value_unit or "", "load")
         return f"the {what} {part.name}"
 
     def elements(self) -> tuple[np.ndarray, np.ndarray]:
@@ -53,15 +69,56 @@ class Load(LinearTwoTerminal):
 
     @staticmethod
     def _element(part: Part) -> tuple[Role, float]:
-        if part.value_unit == "W":
-            raise DesignError(f"part kind `load` with a power in W (load {part.name}) "
-                              f"is not yet supported by the solver", part.location)
-        if part.value is None or part.value_unit not in ("A", "ohm"):
+        if part.value is None or part.value_unit not in ("A", "ohm", "W"):
             raise DesignError(f"load {part.name} needs a current (A), a power (W) or a resistance (Ω)",
                               part.location)
         if part.value_unit == "A":
             return Role.CURRENT, part.value
+        if part.value_unit == "W":
+            if not part.value >= 0:
+                raise DesignError(f"load {part.name} is {format_value(part.value, 'W')}: a load's power must "
+                                  f"not be negative (a part that delivers power is a source)", part.location)
+            return Role.OPEN, part.value  # the nonlinear law below carries it
         if not part.value > 0:
             raise DesignError(f"load {part.name} is {format_value(part.value, 'Ω')}: "
                               f"a resistance must be above zero", part.location)
         return Role.CONDUCTANCE, 1.0 / part.value
+
+    def edges(self) -> Edges:
+        """A constant-power load needs its current from somewhere, like a current source."""
+        linear = super().edges()
+        rows = np.flatnonzero(self.constant)
+        return Edges(np.concatenate([linear.a, self.nodes[rows, 0]]), np.concatenate([linear.b, self.nodes[rows, 1]]),
+                     np.concatenate([linear.kind, np.full(rows.size, EdgeKind.CURRENT)]),
+                     np.concatenate([linear.part, rows]))
+
+    def _law(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Voltage (V), current from -> to (A) and slope (S) of each constant-power part."""
+        a, b = self.nodes[self.constant, 0], self.nodes[self.constant, 1]
+        v = x[a] - x[b]
+        i, g, _ = constant_power(self.scale ** 2 * self.power, v, self.scale * V_MIN)
+        return v, i, g
+
+    def evaluate(self, x: np.ndarray) -> NonlinearStamp:
+        _, i, g = self._law(x)
+        return two_terminal_stamp(self.nodes[self.constant, 0], self.nodes[self.constant, 1], i, g)
+
+    def first_guess(self, x: np.ndarray) -> NonlinearStamp:
+        _, i, _ = self._law(x)
+        zero = np.zeros_like(i)
+        return two_terminal_stamp(self.nodes[self.constant, 0], self.nodes[self.constant, 1], zero, zero)
+
+    def pin_currents(self, x: np.ndarray) -> np.ndarray:
+        currents = super().pin_currents(x)
+        if self.nonlinear:
+            _, i, _ = self._law(x)
+            currents[self.constant] = np.column_stack([i, -i])
+        return currents
+
+    def trouble(self, x: np.ndarray) -> list[tuple[Part, str]]:
+        v, _, _ = self._law(x)
+        rows = np.flatnonzero(self.constant)
+        return [(self.parts[rows[k]], f"{self.describe(self.parts[rows[k]])} cannot draw its "
+                                      f"{format_value(self.power[k], 'W')}: the voltage across it would collapse "
+                                      f"to {format_value(v[k], 'V')}, so the supply cannot deliver that power")
+                for k in np.flatnonzero((v < V_MIN) & (self.power > 0))]

@@ -37,7 +37,8 @@ def elaborate(found: list[Statement], top: Source) -> Design:
     return Design(
         name=circuit.name.text, title=circuit.title or circuit.name.text, path=top.path,
         ground=ground.net.text, parts=tuple(parts),
-        netlists=netlists(circuit.name.text, ground.net.text, parts, cases, lets, expander.instances),
+        netlists=netlists(circuit.name.text, ground.net.text, parts, cases, lets, expander.instances,
+                          circuit.name.location),
         location=circuit.name.location)
 
 
@@ -87,8 +88,11 @@ def _blocks(blocks: list[Block]) -> dict[str, Block]:
         if name in table:
             raise DesignError(f"block `{name}` is already defined at line {table[name].name.location.line}",
                               block.name.location)
+        ports: dict[str, Name] = {}
         for port in block.ports:
-            declared(port, "port")
+            if declared(port, "port") in ports:
+                raise DesignError(f"port `{port.text}` is listed twice in block `{name}`", port.location)
+            ports[port.text] = port
         table[name] = block
     return table
 

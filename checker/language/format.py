@@ -33,7 +33,7 @@ _UNIT_SPELLING = {"\u00b5": "u", "\u03bc": "u", "\u03a9": "ohm", "\u2126": "ohm"
 # Everything but units, which the parse tree pins down (a word after a number is a unit,
 # and `10 V/ratio` divides by a name). NUMBER is the grammar's own pattern.
 _SCAN = re.compile(r"""
-    (?P<space>[ \t\f]+) | (?P<newline>\n) | (?P<comment>\#[^\n]*) | (?P<string>"[^"\n]*")
+    (?P<space>[ \t\f]+) | (?P<newline>\r?\n) | (?P<comment>\#[^\n]*) | (?P<string>"[^"\n]*")
   | (?P<number>(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?) | (?P<word>[A-Za-z_][A-Za-z0-9_]*)
   | (?P<punct>[(),:={}+\-*/^.])""", re.VERBOSE)
 
@@ -76,7 +76,8 @@ def _read(source: Source) -> tuple[Tree, list[_Token], dict[int, str]]:
     """The parse tree, the code tokens in order, and each line's comment (trailing blanks dropped)."""
     tree = parse_tree(source)
     units = _unit_spans(tree)
-    text, tokens, comments, line, pos = source.text, [], {}, 1, 0
+    # As the parser reads it: a final line end added, `\r` allowed before `\n` (circuit.lark, _NL).
+    text, tokens, comments, line, pos = source.text + "\n", [], {}, 1, 0
     while pos < len(text):
         if pos in units:
             tokens.append(_Token("unit", _spell_unit(text[pos:units[pos]]), line, pos))
@@ -147,25 +148,15 @@ class _Layout:
 
     def scope(self, statements: list[Tree], first: int, last: int, indent: int) -> None:
         """Statements with the comment and blank lines around them, from line `first` to `last`."""
-        entries = _tidy(self._entries(statements, first, last))
-        start = 0
-        while start < len(entries):
-            entry = entries[start]
-            if entry is None:
+        for run in _runs(_tidy(self._entries(statements, first, last))):
+            if run[0] is None:
                 self.lines.append(_Line(""))
-            elif isinstance(entry, int):
-                self.lines.append(_Line(" " * indent + self.comments[entry]))
-            elif entry.data == "block":
-                self._block(entry, indent)
+            elif isinstance(run[0], int):
+                self.lines.append(_Line(" " * indent + self.comments[run[0]]))
+            elif run[0].data == "block":
+                self._block(run[0], indent)
             else:
-                end = start + 1
-                while _family(entry) and end < len(entries) and isinstance(entries[end], Tree) \
-                        and _family(entries[end]) == _family(entry):
-                    end += 1
-                self._group(entries[start:end], indent)
-                start = end
-                continue
-            start += 1
+                self._group(run, indent)
 
     def _entries(self, statements: list[Tree], first: int, last: int) -> list[Tree | int | None]:
         """Statements, comment lines (their line number) and blank lines (None), in order."""
@@ -266,6 +257,19 @@ def _tidy(entries: list[Tree | int | None]) -> list[Tree | int | None]:
     if kept and kept[-1] is None:
         kept.pop()
     return kept
+
+
+def _runs(entries: list[Tree | int | None]) -> list[list]:
+    """Entries one by one, except that neighbouring statements of one family form one run."""
+    runs: list[list] = []
+    for entry in entries:
+        previous = runs[-1][0] if runs else None
+        if isinstance(entry, Tree) and isinstance(previous, Tree) and _family(entry) \
+                and _family(entry) == _family(previous):
+            runs[-1].append(entry)
+        else:
+            runs.append([entry])
+    return runs
 
 
 def _family(tree: Tree) -> str | None:

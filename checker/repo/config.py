@@ -13,7 +13,7 @@ from pathlib import Path
 
 from checker.errors import ConfigError, Location
 from checker.yamlsource import (
-    LocatedDict, check_keys, expect_list, expect_mapping, expect_text, load_yaml, location_of,
+    LocatedDict, LocatedStr, check_keys, expect_list, expect_mapping, expect_text, load_yaml,
 )
 
 TOP_KEYS = ("circuits", "limits", "analysis", "report")
@@ -21,6 +21,7 @@ ANALYSIS_KEYS = ("tolerances", "samples", "seed")
 TOLERANCE_MODES = ("nominal", "worst-case", "monte-carlo")
 REPORT_KEYS = ("markdown", "html", "json", "junit", "sarif")
 REPORT_FORMAT = {"markdown": "md", "html": "html", "json": "json", "junit": "junit", "sarif": "sarif"}
+INPUT_SUFFIXES = (".circuit", ".yaml", ".yml")
 MAX_CIRCUITS = 1000
 MAX_SAMPLES = 1_000_000
 
@@ -51,6 +52,9 @@ class Config:
 def find_config(directory: Path, config: Path | None) -> Path:
     """The configuration file: `--config`, else DIR/nodegate.yaml (or .yml)."""
     if config is not None:
+        if config.is_dir():
+            raise ConfigError(f"`--config {config}` is a folder; name the configuration file, or give the folder "
+                              f"as DIR")
         if not config.is_file():
             raise ConfigError(f"configuration file `{config}` does not exist")
         return config
@@ -84,6 +88,8 @@ def load_config(path: Path) -> Config:
 
 def _inside(root: Path, text: str, where: Location | None, what: str) -> Path:
     """`text` as a path relative to `root`, refused if it leaves the repository."""
+    if "\0" in text:
+        raise ConfigError(f"{what} contains a NUL character", where)
     if Path(text).is_absolute():
         raise ConfigError(f"{what} `{text}` must be relative to the configuration file", where)
     resolved = (root / text).resolve()
@@ -98,7 +104,7 @@ def _circuits(value: object, root: Path, where: Location) -> tuple[Path, ...]:
     for index, item in enumerate(items):
         pattern = expect_text(item, "a circuit path or glob", items.item_location(index))
         _inside(root, pattern, pattern.location, "circuit path")
-        matches = sorted(root.glob(pattern)) if _is_glob(pattern) else [root / pattern]
+        matches = _matches(root, str(pattern), pattern.location)
         if not matches:
             raise ConfigError(f"no circuit file matches `{pattern}`", pattern.location)
         for match in matches:
@@ -119,6 +125,16 @@ def _is_glob(pattern: str) -> bool:
     return any(ch in pattern for ch in "*?[")
 
 
+def _matches(root: Path, pattern: str, where: Location) -> list[Path]:
+    """The files a circuit path or glob names, sorted."""
+    if not _is_glob(pattern):
+        return [root / pattern]
+    try:
+        return sorted(root.glob(pattern))
+    except (ValueError, OSError) as error:
+        raise ConfigError(f"cannot use the glob `{pattern}`: {error}", where) from None
+
+
 def _limits(value: object, root: Path, data: LocatedDict) -> tuple[LimitSource, ...]:
     if value is None:
         return ()
@@ -136,7 +152,20 @@ def _limits(value: object, root: Path, data: LocatedDict) -> tuple[LimitSource, 
         if not path.is_file():
             raise ConfigError(f"limits file `{text}` does not exist", text.location)
         sources.append(LimitSource(path=path, location=text.location))
+    _listed_once(sources)
     return tuple(sources)
+
+
+def _listed_once(sources: list[LimitSource]) -> None:
+    """A limits file or pack named twice would define every limit id twice; say so where it happens."""
+    seen: dict[tuple, Location | None] = {}
+    for source in sources:
+        key = (source.path, source.pack)
+        if key in seen:
+            what = f"pack `{source.pack}`" if source.pack else f"limits file `{source.path.name}`"
+            raise ConfigError(f"{what} is listed twice in `limits`", source.location,
+                              (f"first listed at {seen[key]}",))
+        seen[key] = source.location
 
 
 def _analysis(value: object, data: LocatedDict) -> dict:
@@ -165,8 +194,34 @@ def _reports(value: object, root: Path, data: LocatedDict) -> dict[str, Path]:
         return {}
     section = expect_mapping(value, "`report`", data.value_location("report"))
     check_keys(section, REPORT_KEYS, "`report`")
-    reports = {}
+    reports: dict[str, Path] = {}
     for key in section:
         text = expect_text(section[key], f"`report.{key}`", section.value_location(key))
-        reports[REPORT_FORMAT[key]] = _inside(root, text, location_of(text, None), "report path")
+        path = _inside(root, text, text.location, "report path")
+        _writable_report(path, root, text, reports)
+        reports[REPORT_FORMAT[key]] = path
     return reports
+
+
+def _writable_report(path: Path, root: Path, text: LocatedStr, taken: dict[str, Path]) -> None:
+    """Refuse report paths that would overwrite the repository's own files instead of a report.
+
+    A configuration arrives in pull requests from anyone: a report path must not name
+    the repository itself, a folder, anything under `.git`, an input file (circuits,
+    libraries, limits and this configuration all end in `.circuit`, `.yaml` or `.yml`),
+    or the file another format is written to.
+    """
+    if path == root or path.is_dir():
+        raise ConfigError(f"report path `{text}` is a folder; name the report file", text.location)
+    blocked = next((p for p in path.parents if p.exists() and not p.is_dir()), None)
+    if blocked is not None:
+        raise ConfigError(f"report path `{text}` goes through `{blocked.name}`, which is a file", text.location)
+    if ".git" in path.relative_to(root).parts:
+        raise ConfigError(f"report path `{text}` is inside `.git`", text.location)
+    if path.suffix.lower() in INPUT_SUFFIXES:
+        raise ConfigError(f"report path `{text}` would overwrite an input file (`{path.suffix}`)", text.location,
+                          ("reports end in .md, .html, .json, .xml or .sarif",))
+    for fmt, other in taken.items():
+        if other == path:
+            key = next(k for k, v in REPORT_FORMAT.items() if v == fmt)
+            raise ConfigError(f"report path `{text}` is already the path of `report.{key}`", text.location)

@@ -12,10 +12,10 @@ from checker.report.markdown import JOB_SUMMARY_LIMIT, render_markdown
 from checker.report.sarif import render_sarif
 from checker.report.solve import render_solve_json, render_solve_table
 from checker.report.terminal import summary_lines
-from checker.report.writer import FORMATS, write_atomic, write_reports
+from checker.report.writer import FORMATS, write_reports
 
 __all__ = [
     "FORMATS", "JOB_SUMMARY_LIMIT", "render_html", "render_json", "render_junit", "render_markdown",
-    "render_sarif", "render_solve_json", "render_solve_table", "summary_lines", "write_atomic",
+    "render_sarif", "render_solve_json", "render_solve_table", "summary_lines",
     "write_reports",
 ]

@@ -5,12 +5,11 @@ and each file is replaced atomically (a temporary file in the same folder, then
 
 from __future__ import annotations
 
-import os
-import tempfile
 from pathlib import Path
 from typing import Callable, Mapping
 
 from checker.errors import NodegateError
+from checker.files import write_atomic
 from checker.findings import Findings
 from checker.report.html import render_html
 from checker.report.json_report import render_json
@@ -19,27 +18,6 @@ from checker.report.markdown import FULL_REPORT_HINT, JOB_SUMMARY_LIMIT, render_
 from checker.report.sarif import render_sarif
 
 FORMATS = ("md", "html", "json", "junit", "sarif")
-
-
-def write_atomic(path: Path, text: str) -> None:
-    """Write UTF-8 `text` to `path`, creating its folders; readers see the old file or the new one."""
-    path = Path(path)
-    try:
-        path.parent.mkdir(parents=True, exist_ok=True)
-        handle = tempfile.NamedTemporaryFile("w", encoding="utf-8", newline="", dir=path.parent,
-                                             prefix=f".{path.name}.", suffix=".tmp", delete=False)
-    except OSError as error:
-        raise NodegateError(f"cannot write the report `{path}`: {error.strerror or error}") from None
-    try:
-        with handle:
-            handle.write(text)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.chmod(handle.name, 0o644)
-        os.replace(handle.name, path)
-    except OSError as error:
-        Path(handle.name).unlink(missing_ok=True)
-        raise NodegateError(f"cannot write the report `{path}`: {error.strerror or error}") from None
 
 
 def _full_report_hint(targets: Mapping[str, Path]) -> str:
@@ -61,6 +39,21 @@ def _renderers(findings: Findings, targets: Mapping[str, Path], root: Path) -> d
     }
 
 
+def _check_targets(targets: Mapping[str, Path]) -> None:
+    """Refuse, before anything is written, targets that cannot be files: so no run writes half its reports."""
+    seen: dict[Path, str] = {}
+    for name, target in targets.items():
+        path = Path(target)
+        if path.is_dir():
+            raise NodegateError(f"cannot write the {name} report to `{path}`: it is a folder")
+        blocked = next((p for p in path.parents if p.exists() and not p.is_dir()), None)
+        if blocked is not None:
+            raise NodegateError(f"cannot write the {name} report to `{path}`: `{blocked}` is a file")
+        if path.resolve() in seen:
+            raise NodegateError(f"the {name} and {seen[path.resolve()]} reports would both go to `{path}`")
+        seen[path.resolve()] = name
+
+
 def write_reports(findings: Findings, targets: Mapping[str, Path], root: Path) -> None:
     """Render every format named in `targets` (md, html, json, junit, sarif), then write them all.
 
@@ -69,6 +62,7 @@ def write_reports(findings: Findings, targets: Mapping[str, Path], root: Path) -
     unknown = sorted(set(targets) - set(FORMATS))
     if unknown:
         raise NodegateError(f"unknown report format `{unknown[0]}`; choose from {', '.join(FORMATS)}")
+    _check_targets(targets)
     renderers = _renderers(findings, targets, root)
     texts = {name: renderers[name]() for name in targets}
     for name, text in texts.items():

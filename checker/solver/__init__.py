@@ -16,7 +16,7 @@ from checker.design import Netlist, OperatingPoint
 from checker.solver.assembly import System, assemble
 from checker.solver.diagnosis import diagnose
 from checker.solver.linear import Factor
-from checker.solver.newton import newton
+from checker.solver.newton import check_models, newton
 from checker.solver.results import operating_point
 
 
@@ -32,8 +32,9 @@ def solve_cases(netlists: Sequence[Netlist]) -> list[OperatingPoint]:
     groups: dict[bytes, list[int]] = {}
     for position, system in enumerate(systems):
         if system.nonlinear_devices:
-            x, iterations = newton(system)
-            points[position] = operating_point(system, x, iterations, "newton")
+            x, iterations, strategy = newton(system)
+            check_models(system, x)
+            points[position] = operating_point(system, x, iterations, strategy)
         else:
             groups.setdefault(system.fingerprint(), []).append(position)
     for members in groups.values():

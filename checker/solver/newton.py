@@ -1,16 +1,29 @@
 """Newton-Raphson on the modified nodal equations of a circuit with nonlinear devices.
 
-The residual is F(x) = A x - b + f(x): the constant stamps plus the nonlinear
-devices' currents; each step solves J dx = -F with J = A + df/dx (Newton-Raphson
-as applied to circuits in Vlach & Singhal, "Computer Methods for Circuit Analysis
-and Design", 1983 — from memory). Devices may shorten a step through `limit`.
+The residual is F(x) = A x - s b + f(x) + gmin x_nets: the constant stamps, the
+sources scaled by s, the nonlinear devices' currents, and a conductance gmin from
+every net to ground. Each step solves J dx = -F with J = A + df/dx + gmin I
+(Newton-Raphson as applied to circuits in Vlach & Singhal, "Computer Methods for
+Circuit Analysis and Design", 1983, ch. 10 — chapter from memory). The Jacobian's
+sparsity pattern is worked out once per circuit; each iteration only refills its
+values with one vectorised pass per device kind.
+
+Plain Newton (s = 1, gmin = 0) starts from a first guess: one linear solve with
+every device linearised at 0 V (constant-power loads standing aside). When it does
+not settle, two continuation methods follow (Najm, "Circuit Simulation", 2010,
+ch. 5 — chapter from memory): gmin stepping (solve with a large gmin, then lower
+it decade by decade to zero, each solution starting the next) and source stepping
+(raise s from 0 to 1 in adaptive steps). docs/models.md states the tolerances.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 import scipy.sparse as sp
 
+from checker.devices import DEVICES
 from checker.errors import NoSolutionError
 from checker.solver.assembly import System
 from checker.solver.linear import Factor
@@ -20,73 +33,226 @@ CURRENT_ABSTOL = 1e-12  # A: smallest current step (and KCL residual) that still
 RELTOL = 1e-9
 """Relative tolerance of both tests, against the size of the unknown (step test) or
 against the sum of the magnitudes of the currents meeting at the net (residual test).
-Converged means every net's voltage step and every net's KCL residual are within
+Converged means every unknown's step and every row's residual are within
 ABSTOL + RELTOL * scale: the common practice of circuit solvers, set tight because
 Newton-Raphson converges quadratically near the solution, so a tight test costs an
 iteration or two while keeping margins to limits exact to many digits."""
-MAX_ITERATIONS = 100
+MAX_ITERATIONS = 100  # plain Newton
+STEP_ITERATIONS = 40  # each continuation step
+MAX_STEPS = 200  # continuation steps per method
+CONTINUATION_BUDGET = 1000  # Newton iterations per continuation method, so that a hopeless case ends in bounded time
+DIVERGED = 1e9  # V or A: an iterate beyond this has run away
+HALVINGS = 20  # damping: a step whose end cannot be evaluated is halved at most this often
+GMIN_START = -2.0  # log10 S: gmin stepping starts at 10 mS from every net to ground
+GMIN_END = -12.0  # log10 S: the last nonzero gmin before zero
+MIN_STEP = 1e-3  # smallest continuation step: decades of gmin, or fraction of full sources
+
+STRATEGIES = {
+    "newton": "plain Newton iteration from a first guess",
+    "gmin stepping": "raising a small conductance to ground on every net and lowering it step by step",
+    "source stepping": "ramping all sources up from zero",
+}
 
 
-def newton(system: System, x0: np.ndarray | None = None) -> tuple[np.ndarray, int]:
-    """The unknowns at the operating point and the number of Newton iterations taken."""
-    x = np.zeros(system.size) if x0 is None else np.array(x0, dtype=float)
-    for iteration in range(1, MAX_ITERATIONS + 1):
-        residual, jacobian, scale = _linearise(system, x)
-        x_new = _limit(system, x + Factor(jacobian, system.netlist).solve(-residual), x)
-        if _converged(system, x_new - x, x_new, residual, scale):
-            return x_new, iteration
-        x = x_new
-    raise _no_convergence(system, residual, scale)
+class Equations:
+    """F(x) and J(x) of one system, with the Jacobian's pattern fixed on construction."""
+
+    def __init__(self, system: System):
+        self.system = system
+        self.size, self.nodes = system.size, system.n_nodes
+        self.devices = system.nonlinear_devices
+        self.netlist = system.netlist
+        coo = system.matrix.tocoo()
+        self.magnitude = abs(system.matrix)
+        layouts = [device.evaluate(np.zeros(self.size + 1)) for device in self.devices]
+        self.keep = [(s.rows >= 0, (s.jacobian.rows >= 0) & (s.jacobian.cols >= 0)) for s in layouts]
+        diagonal = np.arange(self.nodes)
+        rows = np.concatenate([coo.row] + [s.jacobian.rows[k] for s, (_, k) in zip(layouts, self.keep)] + [diagonal])
+        cols = np.concatenate([coo.col] + [s.jacobian.cols[k] for s, (_, k) in zip(layouts, self.keep)] + [diagonal])
+        keys, self.slot = np.unique(cols.astype(np.int64) * self.size + rows, return_inverse=True)
+        self.indices = keys % self.size
+        self.indptr = np.searchsorted(keys // self.size, np.arange(self.size + 1))
+        self.constant = coo.data
+
+    def linearise(self, x: np.ndarray, gmin: float = 0.0, scale: float = 1.0,
+                  first: bool = False) -> tuple[np.ndarray, sp.csc_matrix, np.ndarray]:
+        """Residual F(x), Jacobian J(x) and each row's scale for the residual test."""
+        x_ext = np.append(x, 0.0)
+        residual = self.system.matrix @ x - scale * self.system.rhs
+        row_scale = self.magnitude @ np.abs(x) + scale * np.abs(self.system.rhs)
+        values = [self.constant]
+        for device, (keep_rows, keep_jac) in zip(self.devices, self.keep):
+            device.scale = scale
+            s = device.first_guess(x_ext) if first else device.evaluate(x_ext)
+            rows, currents = s.rows[keep_rows], s.currents[keep_rows]
+            residual += np.bincount(rows, currents, self.size)
+            row_scale += np.bincount(rows, np.abs(currents), self.size)
+            values.append(s.jacobian.values[keep_jac])
+        residual[:self.nodes] += gmin * x[:self.nodes]
+        row_scale[:self.nodes] += gmin * np.abs(x[:self.nodes])
+        values.append(np.full(self.nodes, gmin))
+        data = np.bincount(self.slot, np.concatenate(values), self.indices.size)
+        return residual, sp.csc_matrix((data, self.indices, self.indptr), shape=(self.size, self.size)), row_scale
+
+    def limit(self, x_new: np.ndarray, x_old: np.ndarray) -> np.ndarray:
+        """The step's end after every device's junction-voltage limiting."""
+        new, old = np.append(x_new, 0.0), np.append(x_old, 0.0)
+        for device in self.devices:
+            new = device.limit(new, old)
+        return new[:-1]
+
+    def tolerances(self) -> tuple[np.ndarray, np.ndarray]:
+        """Absolute tolerance per unknown (step) and per row (residual)."""
+        is_node = np.arange(self.size) < self.nodes
+        return (np.where(is_node, VOLTAGE_ABSTOL, CURRENT_ABSTOL),
+                np.where(is_node, CURRENT_ABSTOL, VOLTAGE_ABSTOL))
+
+    def converged(self, step: np.ndarray, x: np.ndarray, residual: np.ndarray, row_scale: np.ndarray) -> bool:
+        step_tol, residual_tol = self.tolerances()
+        return bool(np.all(np.abs(step) <= step_tol + RELTOL * np.abs(x))
+                    and np.all(np.abs(residual) <= residual_tol + RELTOL * row_scale))
+
+    def first_guess(self) -> np.ndarray:
+        """Newton's starting point: the linear solve with devices linearised at 0 V, taken as a
+        limited step from 0 V like any Newton step (zeros if that solve is singular)."""
+        zero = np.zeros(self.size)
+        residual, jacobian, _ = self.linearise(zero, first=True)
+        try:
+            return self.limit(Factor(jacobian, self.netlist).solve(-residual), zero)
+        except NoSolutionError:
+            return zero
 
 
-def _linearise(system: System, x: np.ndarray) -> tuple[np.ndarray, sp.csc_matrix, np.ndarray]:
-    """Residual F(x), Jacobian J(x), and the scale of each row for the residual test."""
+@dataclass
+class Run:
+    """Where an attempt ended: its last iterate, iterations spent, and whether it converged."""
+
+    x: np.ndarray
+    iterations: int
+    converged: bool
+
+
+def iterate(equations: Equations, x: np.ndarray, gmin: float, scale: float, budget: int) -> Run:
+    """Damped Newton-Raphson from `x` at fixed gmin and source scale, for at most `budget` iterations.
+
+    Damping: junction limiting shortens steps (see the devices' `limit`), and a
+    step whose end gives a non-finite residual is halved, at most HALVINGS times.
+    """
+    previous, halvings = None, 0
+    for iteration in range(1, budget + 1):
+        residual, jacobian, row_scale = equations.linearise(x, gmin, scale)
+        if not np.all(np.isfinite(residual)):
+            if previous is None or halvings >= HALVINGS:
+                return Run(x, iteration, False)
+            x, halvings = previous + 0.5 * (x - previous), halvings + 1
+            continue
+        try:
+            target = x + Factor(jacobian, equations.netlist).solve(-residual)
+        except NoSolutionError:
+            return Run(x, iteration, False)
+        x_new = equations.limit(target, x)
+        if not np.all(np.isfinite(x_new)) or np.max(np.abs(x_new), initial=0.0) > DIVERGED:
+            return Run(x, iteration, False)
+        if equations.converged(x_new - x, x_new, residual, row_scale):
+            return Run(x_new, iteration, True)
+        previous, x = x, x_new
+    return Run(x, budget, False)
+
+
+def newton(system: System) -> tuple[np.ndarray, int, str]:
+    """The unknowns at the operating point, the Newton iterations spent in all, and the strategy that worked.
+
+    Raises NoSolutionError naming the case, the strategies tried and where the
+    equations were furthest from balance, when none converges.
+    """
+    equations = Equations(system)
+    start = equations.first_guess()
+    plain = iterate(equations, start, 0.0, 1.0, MAX_ITERATIONS)
+    spent = plain.iterations
+    if plain.converged:
+        return plain.x, spent, "newton"
+    for name, method in (("gmin stepping", lambda: gmin_stepping(equations, start)),
+                         ("source stepping", lambda: source_stepping(equations))):
+        run = method()
+        spent += run.iterations
+        if run.converged:
+            return run.x, spent, name
+    raise no_convergence(equations, plain.x)
+
+
+def gmin_stepping(equations: Equations, start: np.ndarray) -> Run:
+    """Solve with 10 mS from every net to ground, lower it a decade at a time (adaptively)
+    to 1 pS, then remove it."""
+    run = iterate(equations, start, 10.0 ** GMIN_START, 1.0, STEP_ITERATIONS)
+    if not run.converged:
+        return run
+
+    def settings(decades: float) -> tuple[float, float, bool]:
+        exponent = GMIN_START - decades
+        return (0.0, 1.0, True) if exponent < GMIN_END else (10.0 ** exponent, 1.0, False)
+    return _walk(equations, run, 1.0, settings)
+
+
+def source_stepping(equations: Equations) -> Run:
+    """Raise every source and device setpoint from zero, where 0 V everywhere is the solution, to full."""
+    return _walk(equations, Run(np.zeros(equations.size), 0, True), 0.1,
+                 lambda scale: (0.0, min(scale, 1.0), scale >= 1.0))
+
+
+def _walk(equations: Equations, run: Run, step: float, settings) -> Run:
+    """Move a continuation parameter from 0 in steps; `settings(position)` gives (gmin, source
+    scale, whether this is the last position). A converged step is kept and the next one made
+    half as long again; a failed one is retried a quarter as long, down to MIN_STEP."""
+    x, spent, position = run.x, run.iterations, 0.0
+    for _ in range(MAX_STEPS):
+        if spent >= CONTINUATION_BUDGET:
+            break
+        gmin, scale, last = settings(position + step)
+        attempt = iterate(equations, x, gmin, scale, STEP_ITERATIONS)
+        spent += attempt.iterations
+        if attempt.converged:
+            if last:
+                return Run(attempt.x, spent, True)
+            x, position, step = attempt.x, position + step, step * 1.5
+        else:
+            step *= 0.25
+            if step < MIN_STEP:
+                break
+    return Run(x, spent, False)
+
+
+def no_convergence(equations: Equations, x: np.ndarray) -> NoSolutionError:
+    """The error for a circuit none of the strategies could solve, naming where it is most out of balance."""
+    netlist = equations.netlist
+    residual, _, row_scale = equations.linearise(x)
+    _, residual_tol = equations.tolerances()
+    badness = np.abs(residual) / (residual_tol + RELTOL * row_scale)
+    badness[~np.isfinite(badness)] = np.inf
+    tried = "; ".join(STRATEGIES.values())
+    message = (f"circuit `{netlist.circuit}` has no DC operating point that could be found in case "
+               f"`{netlist.case}`: none of these settled: {tried}")
+    return NoSolutionError(message, netlist.case_location, (_worst(equations.system, int(np.argmax(badness))),))
+
+
+def _worst(system: System, row: int) -> str:
+    """Plain words for the equation furthest from balance: a net and its parts, or a part's branch."""
+    if row < system.n_nodes:
+        net = system.nets[row + 1]
+        parts = [p.name for p in system.netlist.parts if net in p.nets]
+        named = ", ".join(parts[:6]) + (f" and {len(parts) - 6} more" if len(parts) > 6 else "")
+        return f"the largest current imbalance is at net `{net}`, which connects {named}"
+    for device in system.devices:
+        branch = getattr(device, "branch", None)
+        if branch is not None and np.any(branch == row):
+            part = device.parts[int(np.flatnonzero(branch == row)[0])]
+            return f"the largest imbalance is in the output equation of {DEVICES[part.kind].describe(part)}"
+    return "the largest imbalance is in a device's branch equation"
+
+
+def check_models(system: System, x: np.ndarray) -> None:
+    """Raise NoSolutionError for the first part whose converged state lies outside its model."""
     x_ext = np.append(x, 0.0)
-    residual = system.matrix @ x - system.rhs
-    scale = abs(system.matrix) @ np.abs(x) + np.abs(system.rhs)
-    rows, cols, values = [], [], []
     for device in system.nonlinear_devices:
-        stamp = device.evaluate(x_ext)
-        keep = stamp.rows >= 0
-        np.add.at(residual, stamp.rows[keep], stamp.currents[keep])
-        np.add.at(scale, stamp.rows[keep], np.abs(stamp.currents[keep]))
-        jac = stamp.jacobian
-        keep = (jac.rows >= 0) & (jac.cols >= 0)
-        rows.append(jac.rows[keep])
-        cols.append(jac.cols[keep])
-        values.append(jac.values[keep])
-    derivative = sp.csc_matrix((np.concatenate(values), (np.concatenate(rows), np.concatenate(cols))),
-                               shape=system.matrix.shape)
-    return residual, (system.matrix + derivative).tocsc(), scale
-
-
-def _limit(system: System, x_new: np.ndarray, x_old: np.ndarray) -> np.ndarray:
-    new, old = np.append(x_new, 0.0), np.append(x_old, 0.0)
-    for device in system.nonlinear_devices:
-        new = device.limit(new, old)
-    return new[:-1]
-
-
-def _tolerances(system: System) -> tuple[np.ndarray, np.ndarray]:
-    """Absolute tolerance per unknown: volts for net voltages, amps for branch currents."""
-    nodes, size = system.n_nodes, system.size
-    step = np.where(np.arange(size) < nodes, VOLTAGE_ABSTOL, CURRENT_ABSTOL)
-    residual = np.where(np.arange(size) < nodes, CURRENT_ABSTOL, VOLTAGE_ABSTOL)
-    return step, residual
-
-
-def _converged(system: System, step: np.ndarray, x: np.ndarray, residual: np.ndarray, scale: np.ndarray) -> bool:
-    step_tol, residual_tol = _tolerances(system)
-    return bool(np.all(np.abs(step) <= step_tol + RELTOL * np.abs(x))
-                and np.all(np.abs(residual) <= residual_tol + RELTOL * scale))
-
-
-def _no_convergence(system: System, residual: np.ndarray, scale: np.ndarray) -> NoSolutionError:
-    netlist = system.netlist
-    _, residual_tol = _tolerances(system)
-    worst = int(np.argmax(np.abs(residual) / (residual_tol + RELTOL * scale)))
-    where = (f"the largest current imbalance is at net `{system.nets[worst + 1]}`" if worst < system.n_nodes
-             else "the largest imbalance is in a device's branch equation")
-    return NoSolutionError(
-        f"circuit `{netlist.circuit}` did not converge to a DC operating point in case "
-        f"`{netlist.case}` after {MAX_ITERATIONS} Newton iterations", netlist.case_location, (where,))
+        for part, reason in device.trouble(x_ext):
+            note = f"in case `{system.netlist.case}` of circuit `{system.netlist.circuit}`"
+            raise NoSolutionError(reason, part.location or system.netlist.case_location, (note,))

@@ -10,7 +10,8 @@ from report_bike_light import bike_light
 
 import checker.report.writer as writer
 from checker.errors import NodegateError
-from checker.report import render_json, write_atomic, write_reports
+from checker.files import write_atomic
+from checker.report import render_json, write_reports
 
 
 def test_write_atomic_creates_folders_and_leaves_no_temporary(tmp_path):
@@ -24,11 +25,11 @@ def test_write_atomic_creates_folders_and_leaves_no_temporary(tmp_path):
 
 def test_unwritable_target_is_an_input_error(tmp_path):
     (tmp_path / "taken").write_text("a file, not a folder")
-    with pytest.raises(NodegateError, match="cannot write the report"):
+    with pytest.raises(NodegateError, match="cannot write `"):
         write_atomic(tmp_path / "taken" / "report.md", "x")
     folder = tmp_path / "folder.md"
     folder.mkdir()
-    with pytest.raises(NodegateError, match="cannot write the report"):
+    with pytest.raises(NodegateError, match="cannot write `"):
         write_atomic(folder, "x")
     assert sorted(os.listdir(tmp_path)) == ["folder.md", "taken"]  # no temporary left behind
     assert not list(folder.iterdir())

@@ -15,7 +15,7 @@ from checker.devices import DEVICES
 from checker.devices.base import Device, EdgeKind, Edges, NonlinearStamp, Triplets
 from checker.errors import Location, NoSolutionError
 from checker.solver import solve, solve_cases
-from checker.solver.newton import MAX_ITERATIONS
+from checker.solver.newton import MAX_ITERATIONS, STRATEGIES
 
 # V: thermal voltage kT/q at 300 K from the exact defining constants (SI Brochure, 9th ed., 2019, Table 1).
 VT = 1.380649e-23 * 300.0 / 1.602176634e-19
@@ -103,9 +103,23 @@ class Cycler(TwoTerminalLaw):
         return 3 * v ** 2 - 2
 
 
+class Saturating(TwoTerminalLaw):
+    """i = tanh(v): bounded by 1 A in both directions."""
+
+    kind = "saturating"
+
+    @staticmethod
+    def law(v):
+        return np.tanh(v)
+
+    @staticmethod
+    def slope(v):
+        return 1.0 / np.cosh(np.clip(v, -300, 300)) ** 2
+
+
 @pytest.fixture(autouse=True)
 def nonlinear_kinds(monkeypatch):
-    for cls in (Cubic, Junction, Cycler):
+    for cls in (Cubic, Junction, Cycler, Saturating):
         monkeypatch.setitem(DEVICES, cls.kind, cls)
 
 
@@ -144,11 +158,22 @@ def test_result_satisfies_kirchhoff_and_tellegen():
     assert abs(sum(powers)) <= 1e-9 * sum(map(abs, powers))
 
 
-def test_no_convergence_is_a_no_solution_error_naming_the_net():
+def test_continuation_rescues_a_cycling_newton_against_brentq():
+    op = solve(net(two("I1", "source", "x", "gnd", 2.0, "A"), two("N1", "cycler", "x", "gnd")))
+    # KCL at x: 2 A leaves through I1 (x -> gnd), so N1 carries -2 A: v^3 - 2 v + 2 = 0, one real root.
+    v = brentq(lambda u: Cycler.law(u) + 2.0, -3.0, -1.0, xtol=1e-15)
+    assert op.nets["x"] == pytest.approx(v, abs=1e-9)
+    assert op.strategy in ("gmin stepping", "source stepping")
+
+
+def test_no_convergence_is_a_no_solution_error_naming_the_case_strategies_and_net():
+    # tanh(v) never exceeds 1 A, so 2 A pushed into x has no operating point at all.
     with pytest.raises(NoSolutionError) as caught:
-        solve(net(two("I1", "source", "x", "gnd", 2.0, "A"), two("N1", "cycler", "x", "gnd")))
-    assert f"did not converge to a DC operating point in case `default` after {MAX_ITERATIONS}" in caught.value.message
-    assert caught.value.notes == ("the largest current imbalance is at net `x`",)
+        solve(net(two("I1", "source", "gnd", "x", 2.0, "A"), two("N1", "saturating", "x", "gnd")))
+    message = caught.value.message
+    assert "no DC operating point" in message and "in case `default`" in message
+    assert all(words in message for words in STRATEGIES.values())
+    assert caught.value.notes == ("the largest current imbalance is at net `x`, which connects I1, N1",)
     assert caught.value.location.line == 9
 
 
