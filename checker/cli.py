@@ -77,7 +77,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     explain = commands.add_parser("explain", help="show one limit: its check, each case's value and margin")
     explain.add_argument("limit_id", metavar="LIMIT_ID")
-    explain.add_argument("--config", type=Path, default=Path("nodegate.yaml"))
+    explain.add_argument("--config", type=Path, help="the configuration file (default: ./nodegate.yaml)")
 
     fmt = commands.add_parser("fmt", help="rewrite .circuit files in the canonical layout")
     fmt.add_argument("files", nargs="+", type=Path, metavar="FILE")

@@ -37,7 +37,10 @@ def run(args: argparse.Namespace) -> int:
         print(line)
     for path in targets.values():
         print(f"report: {shown(path)}")
-    return fail_exit_code(findings, args.fail_on, args.strict)
+    code = fail_exit_code(findings, args.fail_on, args.strict)
+    if code and args.strict and not fail_exit_code(findings, args.fail_on):
+        print("nodegate: fails under --strict: warnings and unused waivers count as failures.")
+    return code
 
 
 def _progress():

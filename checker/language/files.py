@@ -10,7 +10,7 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
-from checker.errors import CircuitSyntaxError, DesignError, Location
+from checker.errors import CircuitSyntaxError, DesignError, Location, NodegateError
 from checker.language.parser import parse_tree
 from checker.language.source import Source
 from checker.language.syntax import Block, Let, Statement, Use, statements
@@ -22,6 +22,8 @@ MAX_FILES = 256
 def read_source(path: Path, shown: str, location: Location | None) -> Source:
     """The text of a file as a Source; DesignError (at `location`, the `use` if any) when unreadable."""
     try:
+        if path.is_dir():
+            raise DesignError(f"`{shown}` is a folder, not a circuit file", location)
         if not path.is_file():
             raise DesignError(f"cannot find the file `{shown}`", location)
         with open(path, "rb") as handle:
@@ -87,7 +89,11 @@ class Loader:
         if len(self.seen) > MAX_FILES:
             raise DesignError(f"more than {MAX_FILES} files are used", statement.location)
         library = read_source(resolved, shown, statement.location)
-        return self.statements(library, chain + (resolved,), library=True)
+        try:
+            return self.statements(library, chain + (resolved,), library=True)
+        except NodegateError as error:  # say which `use` brought the file in
+            raise type(error)(error.message, error.location,
+                              (*error.notes, f"in the file used at {statement.location}")) from None
 
     def resolve(self, target: Path, statement: Use) -> Path:
         try:

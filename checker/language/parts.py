@@ -13,7 +13,7 @@ from checker.errors import nearest
 from checker.kinds import KINDS, VALUE_UNITS, Kind
 from checker.language.expressions import Scope, dim_text, evaluate
 from checker.language.syntax import Expr, Name, PartStatement, Prop
-from checker.units import dim_name
+from checker.units import DIMENSIONLESS, dim_name
 
 
 def unknown_kind(kind: Name, blocks) -> DesignError:
@@ -109,7 +109,7 @@ def property_value(kind: Kind, key: Name, value: Expr, at: Expr | None, scope: S
         hint = nearest(key.text, kind.prop_names())
         raise DesignError(f"a {kind.name} has no property `{key.text}`" + (f"; did you mean `{hint}`?" if hint else ""),
                           key.location, (f"{kind.name} properties: {', '.join(kind.prop_names())}",))
-    number = _checked(evaluate(value, scope), spec.dim, spec.temperature, key.text, value)
+    number = _checked(evaluate(value, scope), spec.dim, spec.temperature, f"`{key.text}`", value)
     if spec.at is None:
         if at is not None:
             raise DesignError(f"`{key.text}` takes no test condition (`at`)", at.location)
@@ -124,6 +124,8 @@ def _checked(quantity, dim, temperature: bool, what: str, expr: Expr) -> float:
     if quantity.dim == dim and (temperature or not quantity.absolute):
         return quantity.value
     expected = "a temperature (degC or K)" if temperature else dim_name(dim)
+    if dim == DIMENSIONLESS and not temperature:
+        expected = "a plain number, %, or ppm"
     got = "has no unit" if dim_text(quantity) == "dimensionless" else f"is in {dim_text(quantity)}"
     raise UnitError(f"{what} {got}; expected {expected}", expr.location)
 

@@ -7,11 +7,12 @@ Only statements are walked here, so a long expression never recurses in Python.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 
 from lark import Token, Tree
 
-from checker.errors import DesignError, Location
+from checker.errors import CircuitSyntaxError, DesignError, Location
 from checker.kinds import KINDS
 from checker.language.source import Source
 
@@ -119,6 +120,9 @@ RESERVED = frozenset(KINDS) | {"circuit", "ground", "let", "use", "block", "case
                                "from", "to", "absent", "ambient"}
 
 
+_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")  # all but tab
+
+
 def declared(name: Name, what: str) -> str:
     """A name being declared, checked against the reserved words."""
     if name.text in RESERVED:
@@ -146,9 +150,18 @@ class _Builder:
     def expr(self, tree: Tree) -> Expr:
         return Expr(tree, self.source)
 
+    def string(self, token: Token) -> str:
+        """A string's text; control characters (terminal escapes, bidirectional overrides) are refused,
+        since titles and paths are printed in reports and logs."""
+        found = _CONTROL.search(str(token))
+        if found is not None:
+            where = self.source.at_position(token.line, token.column + found.start())
+            raise CircuitSyntaxError(f"a string holds the control character U+{ord(found.group()):04X}", where)
+        return str(token)[1:-1]
+
     def circuit(self, tree: Tree, location: Location) -> Circuit:
         name, title = tree.children
-        return Circuit(self.name(name), str(title)[1:-1] if title is not None else None, location)
+        return Circuit(self.name(name), self.string(title) if title is not None else None, location)
 
     def ground(self, tree: Tree, location: Location) -> Ground:
         return Ground(self.name(tree.children[0]), location)
@@ -158,7 +171,7 @@ class _Builder:
         return Let(self.name(name), self.expr(value), location)
 
     def use(self, tree: Tree, location: Location) -> Use:
-        return Use(str(tree.children[0])[1:-1], self.source.at(tree.children[0]))
+        return Use(self.string(tree.children[0]), self.source.at(tree.children[0]))
 
     def block(self, tree: Tree, location: Location) -> Block:
         name, ports, *body = tree.children

@@ -15,7 +15,7 @@ from pathlib import Path
 from checker.errors import LimitError, Location, did_you_mean
 from checker.findings import Limit, Waiver
 from checker.limits.vocabulary import KINDS
-from checker.yamlsource import (LocatedDict, check_keys, expect_list, expect_mapping,
+from checker.yamlsource import (LocatedDict, LocatedStr, check_keys, expect_list, expect_mapping,
                                 expect_text, load_yaml, load_yaml_text, location_of)
 
 LIMIT_KEYS = ("id", "about", "check", "each", "where", "cases", "severity")
@@ -26,6 +26,7 @@ MAX_BYTES = 1_000_000
 _KEBAB = re.compile(r"[a-z0-9]+(-[a-z0-9]+)*")
 _WORD = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
 _PACK_NAME = re.compile(r"[a-z0-9][a-z0-9_-]*")
+_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")  # all but tab and newline
 
 
 @dataclass(frozen=True)
@@ -111,7 +112,10 @@ def _limit(entry: LocatedDict, source: str) -> Limit:
     ident = _text(entry, "id", "a limit")
     if not _KEBAB.fullmatch(ident):
         raise LimitError(f"limit id `{ident}` must be kebab-case: lower-case words joined by `-`", ident.location)
-    about = _text(entry, "about", f"limit `{ident}`")
+    if "about" not in entry:
+        raise LimitError(f"limit `{ident}` needs `about`: one line saying what it protects, shown in reports",
+                         entry.location)
+    about = _plain(_text(entry, "about", f"limit `{ident}`"), "about")
     if "\n" in about.strip():
         raise LimitError("`about` is one line, shown in reports", about.location)
     each, where = _text(entry, "each", "", False), _text(entry, "where", "", False)
@@ -122,6 +126,16 @@ def _limit(entry: LocatedDict, source: str) -> Limit:
     return Limit(id=str(ident), about=str(about).strip(), check=_text(entry, "check", f"limit `{ident}`"),
                  severity=_severity(entry), each=each, where=where, cases=_cases(entry),
                  source=source, location=entry.key_location("id"))
+
+
+def _plain(text: LocatedStr, key: str) -> LocatedStr:
+    """Free text shown in reports and CI logs: control characters (terminal escapes, bidirectional
+    overrides) would make it print or read differently from what the file says, so they are refused."""
+    found = _CONTROL.search(text)
+    if found is not None:
+        raise LimitError(f"`{key}` holds the control character U+{ord(found.group()):04X}; write plain text",
+                         text.location_at(found.start()))
+    return text
 
 
 def _check_each(each: str) -> None:
@@ -164,7 +178,7 @@ def _unique_ids(limits: tuple[Limit, ...]) -> None:
 def _waiver(entry: LocatedDict) -> Waiver:
     check_keys(entry, WAIVER_KEYS, "a waiver", LimitError)
     limit = _text(entry, "limit", "a waiver")
-    reason = _text(entry, "reason", f"the waiver of `{limit}`")
+    reason = _plain(_text(entry, "reason", f"the waiver of `{limit}`"), "reason")
     return Waiver(limit=limit, reason=str(reason).strip(), until=_date(entry),
                   part=_text(entry, "part", "", False), case=_text(entry, "case", "", False),
                   location=entry.location)

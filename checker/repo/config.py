@@ -53,11 +53,14 @@ def find_config(directory: Path, config: Path | None) -> Path:
     """The configuration file: `--config`, else DIR/nodegate.yaml (or .yml)."""
     if config is not None:
         if config.is_dir():
-            raise ConfigError(f"`--config {config}` is a folder; name the configuration file, or give the folder "
-                              f"as DIR")
+            raise ConfigError(f"`--config {config}` is a folder; --config names the configuration file itself")
         if not config.is_file():
             raise ConfigError(f"configuration file `{config}` does not exist")
         return config
+    if directory.is_file():
+        hint = "give its folder, or name it with --config" if directory.suffix in (".yaml", ".yml") else \
+            "`nodegate solve FILE` prints the operating point of one circuit file"
+        raise ConfigError(f"`{directory}` is a file; `nodegate check` takes the repository's folder", notes=(hint,))
     for name in ("nodegate.yaml", "nodegate.yml"):
         if (directory / name).is_file():
             return directory / name
