@@ -6,7 +6,7 @@ Sources (cited beside each check):
   chips, as manufacturers' datasheets state; the clause of the standard from memory).
 - NASA/TP-2003-212242 (EEE-INST-002, 2003), resistor derating, style RM: power ratio
   0.60 to the knee, then linear to a derated zero-power temperature of
-  knee + 0.60 x (rated zero - knee) (seen via a secondary transcription of its table);
+  knee + 0.60 x (rated zero - knee) (seen via a secondary copy of its table);
   capacitor derating, ceramic: voltage factor 0.60.
 - JEDEC JESD51-2A: theta_JA = (T_J - T_A) / P, so T_J = T_A + P x theta_JA.
 - Junction derating tj_max - 40 K, at most 125 degC: EEE-INST-002, from memory.
