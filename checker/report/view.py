@@ -218,8 +218,13 @@ def make_verdict(findings: Findings) -> Verdict:
     elif expired:
         headline = f"{plural(len(expired), 'waiver')} {'has' if len(expired) == 1 else 'have'} expired"
     elif total:
-        headline = f"all {plural(total, 'limit')} hold" if total > 1 else "the 1 limit holds"
-        details.append(f"in {plural(len(findings.circuits), 'circuit')}")
+        holding = len(findings.with_status("pass"))
+        if holding < total:  # warnings or waivers remain: "all hold" would overstate it
+            headline = "no limit fails"
+            details.append(f"({holding} of {total} hold in {plural(len(findings.circuits), 'circuit')})")
+        else:
+            headline = f"all {plural(total, 'limit')} hold" if total > 1 else "the 1 limit holds"
+            details.append(f"in {plural(len(findings.circuits), 'circuit')}")
     else:
         headline = "no limits to check"
     counts = [(len(findings.warnings), "warning", None), (len(findings.with_status("waived")), "waived", "waived"),
