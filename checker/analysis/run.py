@@ -9,15 +9,17 @@ always the nominal ones.
 
 from __future__ import annotations
 
+import contextlib
 import datetime
 from dataclasses import dataclass
-from typing import Callable, Sequence
+from typing import Callable, Iterator, Sequence
 
 from checker.analysis.montecarlo import monte_carlo, outcomes_in_order
 from checker.analysis.sensitivity import Key, Target, outcomes_at, swings
 from checker.analysis.tolerances import toleranced
 from checker.analysis.worstcase import MAX_TOLERANCED_PARTS, worst_case
 from checker.design import Design, OperatingPoint
+from checker.errors import NodegateError
 from checker.findings import Analysis, CircuitResult, Finding, Findings, Outcome
 from checker.limits.engine import LimitSet
 from checker.limits.waivers import apply_waivers
@@ -33,6 +35,18 @@ class Result:
     outcomes: tuple[Outcome, ...]
     drivers: Drivers = ()
     fail_fraction: float | None = None
+
+
+@contextlib.contextmanager
+def located_at(design: Design) -> Iterator[None]:
+    """Give an error from solving `design` that carries no location (the `default` case of a file
+    without cases has none) the place of the circuit's name, so it still prints `path:line:col`."""
+    try:
+        yield
+    except NodegateError as error:
+        if error.location is not None or design.location is None:
+            raise
+        raise type(error)(error.message, design.location, error.notes) from None
 
 
 def targets_of(limit_set: LimitSet, circuit: str) -> list[Target]:
@@ -101,16 +115,17 @@ def analyse(limit_set: LimitSet, designs: Sequence[Design], today: datetime.date
     circuits, results = [], {}
     for design in designs:
         report(f"solving {design.name}: {len(design.netlists)} case(s), {len(design.parts)} part(s)")
-        points = tuple(solve_cases(design.netlists))
-        circuits.append(CircuitResult(design.name, design.title, design.path, points))
-        targets = targets_of(limit_set, design.name)
-        if analysis.mode == "worst-case":
-            report(f"{design.name}: worst-case corners")
-            results.update(_worst_case(design, points, targets))
-        elif analysis.mode == "monte-carlo":
-            results.update(_monte_carlo(design, points, targets, analysis, report))
-        else:
-            results.update(_nominal(points, targets))
+        with located_at(design):
+            points = tuple(solve_cases(design.netlists))
+            circuits.append(CircuitResult(design.name, design.title, design.path, points))
+            targets = targets_of(limit_set, design.name)
+            if analysis.mode == "worst-case":
+                report(f"{design.name}: worst-case corners")
+                results.update(_worst_case(design, points, targets))
+            elif analysis.mode == "monte-carlo":
+                results.update(_monte_carlo(design, points, targets, analysis, report))
+            else:
+                results.update(_nominal(points, targets))
     report(f"evaluated {len(limit_set.limits)} limit(s)")
     findings, notes = apply_waivers(_findings(limit_set, results), limit_set.waivers, today)
     return Findings(findings=findings, circuits=tuple(circuits), waiver_notes=notes, analysis=analysis)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from checker.analysis.run import located_at
 from checker.errors import DesignError, did_you_mean
 from checker.language import load_design
 from checker.report import render_solve_json, render_solve_table
@@ -32,7 +33,8 @@ def run(args: argparse.Namespace) -> int:
         if not netlists:
             raise DesignError(f"`{design.path}` has no case `{args.case}`",
                               notes=did_you_mean(args.case, design.cases) + (f"its cases: {', '.join(design.cases)}",))
-    points = solve_cases(netlists)
+    with located_at(design):
+        points = solve_cases(netlists)
     if args.format == "json":
         print(render_solve_json(design.name, points))
     else:

@@ -10,7 +10,7 @@ from __future__ import annotations
 from dataclasses import replace
 
 from checker.design import Netlist, Part
-from checker.errors import DesignError, Location, UnitError
+from checker.errors import DesignError, UnitError
 from checker.errors import nearest
 from checker.kinds import KINDS
 from checker.language.expressions import Scope, dim_text, evaluate
@@ -23,10 +23,10 @@ MAX_CASES = 1000
 
 
 def netlists(circuit: str, ground: str, parts: list[Part], cases: list[Case], scope: Scope,
-             instances: set[str], location: Location | None = None) -> tuple[Netlist, ...]:
-    """One Netlist per case in declaration order, or one named `default` located at `location` (the circuit's name)."""
+             instances: set[str]) -> tuple[Netlist, ...]:
+    """One Netlist per case in declaration order, or one named `default`."""
     if not cases:
-        return (Netlist(circuit, "default", DEFAULT_AMBIENT, ground, tuple(parts), location),)
+        return (Netlist(circuit, "default", DEFAULT_AMBIENT, ground, tuple(parts)),)
     if len(cases) > MAX_CASES:
         raise DesignError(f"more than {MAX_CASES} cases", cases[MAX_CASES].location)
     seen: dict[str, int] = {}

@@ -37,8 +37,7 @@ def elaborate(found: list[Statement], top: Source) -> Design:
     return Design(
         name=circuit.name.text, title=circuit.title or circuit.name.text, path=top.path,
         ground=ground.net.text, parts=tuple(parts),
-        netlists=netlists(circuit.name.text, ground.net.text, parts, cases, lets, expander.instances,
-                          circuit.name.location),
+        netlists=netlists(circuit.name.text, ground.net.text, parts, cases, lets, expander.instances),
         location=circuit.name.location)
 
 

@@ -23,7 +23,7 @@ def read_source(path: Path, shown: str, location: Location | None) -> Source:
     """The text of a file as a Source; DesignError (at `location`, the `use` if any) when unreadable."""
     try:
         if path.is_dir():
-            raise DesignError(f"`{shown}` is a folder, not a circuit file", location)
+            raise DesignError(f"cannot find a file at `{shown}`: that is a folder", location)
         if not path.is_file():
             raise DesignError(f"cannot find the file `{shown}`", location)
         with open(path, "rb") as handle:

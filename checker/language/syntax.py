@@ -151,8 +151,8 @@ class _Builder:
         return Expr(tree, self.source)
 
     def string(self, token: Token) -> str:
-        """A string's text; control characters (terminal escapes, bidirectional overrides) are refused,
-        since titles and paths are printed in reports and logs."""
+        """A title's text; control characters (terminal escapes, bidirectional overrides) are refused,
+        since titles are printed in reports. (A `use` path with one names no file and fails as such.)"""
         found = _CONTROL.search(str(token))
         if found is not None:
             where = self.source.at_position(token.line, token.column + found.start())
@@ -171,7 +171,7 @@ class _Builder:
         return Let(self.name(name), self.expr(value), location)
 
     def use(self, tree: Tree, location: Location) -> Use:
-        return Use(self.string(tree.children[0]), self.source.at(tree.children[0]))
+        return Use(str(tree.children[0])[1:-1], self.source.at(tree.children[0]))
 
     def block(self, tree: Tree, location: Location) -> Block:
         name, ports, *body = tree.children

@@ -42,8 +42,16 @@ def _case_heading(point: OperatingPoint) -> str:
 
 
 def _union(keys_per_case: list[list[str]]) -> list[str]:
-    """Every key in order of first appearance over the cases (absent parts leave gaps)."""
-    return list(dict.fromkeys(key for keys in keys_per_case for key in keys))
+    """Every key over the cases in declaration order: a part absent from some cases still
+    appears where it is declared, right after its predecessor in a case that has it."""
+    merged = list(max(keys_per_case, key=len, default=[]))
+    known = set(merged)
+    for keys in keys_per_case:
+        for position, key in enumerate(keys):
+            if key not in known:  # rare: only parts absent from the longest case
+                merged.insert(merged.index(keys[position - 1]) + 1 if position else 0, key)
+                known.add(key)
+    return merged
 
 
 def _net_rows(points: tuple[OperatingPoint, ...]) -> tuple[TableRow, ...]:
