@@ -455,6 +455,9 @@ def _in_range(node: InRange, scope: Scope) -> Typed:
     def run(values):
         numbers = x(values), lo(values), hi(values)
         _finite(where, node.pos, values, *numbers)
+        if numbers[1] > numbers[2]:  # a range no value can be in: its ends are swapped
+            raise where.error(f"the range's low end is above its high end in case `{values.case}`; "
+                              "write `LOW .. HIGH`", _pos(node.low))
         return margins.in_range(*numbers, value.dim, value.absolute)
     return Typed(True, run, value.dim, value.absolute)
 

@@ -22,6 +22,7 @@ LIMIT_KEYS = ("id", "about", "check", "each", "where", "cases", "severity")
 WAIVER_KEYS = ("limit", "part", "case", "reason", "until")
 SEVERITIES = ("error", "warning")
 MAX_BYTES = 1_000_000
+MAX_TEXT = {"about": 500, "reason": 2000}  # characters of the free text shown in every report
 
 _KEBAB = re.compile(r"[a-z0-9]+(-[a-z0-9]+)*")
 _WORD = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
@@ -112,18 +113,17 @@ def _limit(entry: LocatedDict, source: str) -> Limit:
     ident = _text(entry, "id", "a limit")
     if not _KEBAB.fullmatch(ident):
         raise LimitError(f"limit id `{ident}` must be kebab-case: lower-case words joined by `-`", ident.location)
-    if "about" not in entry:
-        raise LimitError(f"limit `{ident}` needs `about`: one line saying what it protects, shown in reports",
-                         entry.location)
-    about = _plain(_text(entry, "about", f"limit `{ident}`"), "about")
-    if "\n" in about.strip():
-        raise LimitError("`about` is one line, shown in reports", about.location)
+    about = _text(entry, "about", f"limit `{ident}`", False)  # optional, as in RULES.md's own example
+    if about is not None:
+        about = _plain(about, "about")
+        if "\n" in about.strip():
+            raise LimitError("`about` is one line, shown in reports", about.location)
     each, where = _text(entry, "each", "", False), _text(entry, "where", "", False)
     if each is not None:
         _check_each(each)
     if where is not None and each is None:
         raise LimitError("`where` chooses among the parts of `each`; add `each: KIND`", entry.key_location("where"))
-    return Limit(id=str(ident), about=str(about).strip(), check=_text(entry, "check", f"limit `{ident}`"),
+    return Limit(id=str(ident), about=str(about or "").strip(), check=_text(entry, "check", f"limit `{ident}`"),
                  severity=_severity(entry), each=each, where=where, cases=_cases(entry),
                  source=source, location=entry.key_location("id"))
 
@@ -135,6 +135,9 @@ def _plain(text: LocatedStr, key: str) -> LocatedStr:
     if found is not None:
         raise LimitError(f"`{key}` holds the control character U+{ord(found.group()):04X}; write plain text",
                          text.location_at(found.start()))
+    if len(text) > MAX_TEXT[key]:
+        raise LimitError(f"`{key}` is longer than {MAX_TEXT[key]} characters; keep it to the point",
+                         text.location_at(MAX_TEXT[key]))
     return text
 
 

@@ -204,3 +204,22 @@ def test_qa_init_into_a_file_is_an_input_error(tmp_path, capsys, make):
     assert code == 2
     assert err.startswith("nodegate: error:")
     assert blocker.read_text(encoding="utf-8") == "x"
+
+
+def test_qa_about_has_a_length_bound(tmp_path, capsys):
+    # A 900 000-character `about` was copied into every report.
+    limits = f"limits:\n  - id: adc-range\n    about: {'y' * 600}\n    check: voltage(adc) <= 1.8 V\n"
+    folder = repo(tmp_path, "circuits: [bike.circuit]\nlimits: [limits.yaml]\n", limits)
+    code, _, err = run(capsys, "check", str(folder))
+    assert code == 2
+    assert "limits.yaml:3:512: error: `about` is longer than 500 characters" in first_line(err)
+
+
+def test_qa_swapped_range_is_a_rule_error_and_writes_no_report(tmp_path, capsys):
+    # `in 1.6 V .. 0.1 V` can never hold; it used to fail silently as if the circuit were wrong.
+    limits = LIMITS.replace("voltage(adc) <= 1.8 V", "voltage(adc) in 1.6 V .. 0.1 V")
+    folder = repo(tmp_path, "circuits: [bike.circuit]\nlimits: [limits.yaml]\n", limits)
+    code, _, err = run(capsys, "check", str(folder))
+    assert code == 2
+    assert "limits.yaml:4:28: error: the range's low end is above its high end" in first_line(err)
+    assert not (folder / "build").exists()

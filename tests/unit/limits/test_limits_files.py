@@ -92,9 +92,14 @@ def test_limits_file_wrong_values_are_errors_at_their_place(text, line):
 
 def test_limits_file_missing_fields_are_errors():
     assert "check" in error_of("limits:\n  - id: a-b\n    about: x\n").message
-    assert "about" in error_of("limits:\n  - id: a-b\n    check: x\n").message
     assert "until" in error_of("waivers:\n  - limit: a\n    reason: r\n").message
     assert "reason" in error_of("waivers:\n  - limit: a\n    until: 2027-01-01\n").message
+
+
+def test_limits_file_about_is_optional_as_in_the_spec_example():
+    # RULES.md's own example has limits without `about`
+    limits = load_limit_text("limits:\n  - id: a-b\n    check: voltage(x) <= 1 V\n", "l.yaml").limits
+    assert limits[0].about == ""
 
 
 def test_limits_file_duplicate_id_is_an_error_at_the_second():
