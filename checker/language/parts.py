@@ -38,6 +38,9 @@ def ordered_nets(statement: PartStatement, pins: tuple[str, ...], what: str) -> 
     if missing:
         raise DesignError(f"pin {', '.join(f'`{p}`' for p in missing)} not connected",
                           statement.name.location, (listing,))
+    if pins == ("from", "to") and given["from"].text == given["to"].text:
+        raise DesignError(f"both ends of this {what.split()[-1]} are on net `{given['to'].text}`, so it does nothing",
+                          given["to"].location, ("a two-terminal part joins two different nets",))
     return tuple(given[pin] for pin in pins)
 
 

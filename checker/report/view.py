@@ -183,7 +183,7 @@ def make_row(finding: Finding) -> Row:
                                           else (finding.change or "", "", ""))
     return Row(
         finding=finding, status=finding.status, circuit=finding.circuit,
-        limit=finding.limit.id, item=finding.item or "", about=finding.limit.about,
+        limit=finding.limit.id, item=finding.item or "", about=finding.limit.about or finding.limit.check,
         check=finding.limit.check, severity=finding.limit.severity, **_worst_columns(worst),
         change=change, base_margin=base_margin, margin_change=margin_change,
         waiver=waiver_text(finding.waiver), drivers=drivers_text(finding),

@@ -94,3 +94,10 @@ def test_qa_render_window_far_into_a_long_line():
     lines = render(caught).splitlines()
     assert len(lines[1]) < 200 and lines[1].startswith("  \u2026")
     assert lines[1][lines[2].index("^"):].startswith("1 A")
+
+
+def test_qa_two_terminal_part_with_both_ends_on_one_net_is_an_error():
+    with pytest.raises(DesignError) as caught:
+        parse_design("circuit t\nground gnd\nsource V from a to gnd : 1 V\nresistor R1 from a to a : 1 kohm\n", "t.circuit")
+    assert (caught.value.location.line, caught.value.location.column) == (4, 23)
+    assert "both ends" in caught.value.message
