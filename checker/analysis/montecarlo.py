@@ -21,7 +21,7 @@ from checker.analysis.sensitivity import Key, Target, outcomes_at
 from checker.analysis.tolerances import Tolerance, perturbed, toleranced
 from checker.design import Design, Netlist, OperatingPoint
 from checker.findings import Outcome
-from checker.solver import solve_cases
+from checker.solver import Cache, solve_cases
 
 PROGRESS_STEPS = 10  # report progress every tenth of the samples
 
@@ -80,9 +80,10 @@ def monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Seque
     tolerances = [toleranced(netlist) for netlist in netlists]
     rng = generator(seed, design.name)
     step = max(samples // PROGRESS_STEPS, 1)
+    cache = Cache()  # every sample has the nominal topologies: number nets and find patterns once
     for sample in range(1, samples + 1):
         draw = dict(zip(names, rng.uniform(-1.0, 1.0, len(names))))
-        solved = solve_cases(_board(netlists, tolerances, draw))
+        solved = solve_cases(_board(netlists, tolerances, draw), cache)
         tally.add({p.case: outcomes_at(active[p.case], p, f"sample {sample}") for p in solved})
         if sample % step == 0 or sample == samples:
             report(f"{design.name}: {sample} of {samples} samples")

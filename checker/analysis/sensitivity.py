@@ -20,7 +20,7 @@ from checker.design import Netlist, OperatingPoint
 from checker.findings import Outcome
 from checker.limits.compiler import CaseValues
 from checker.limits.engine import CompiledItem, CompiledLimit
-from checker.solver import solve_cases
+from checker.solver import Cache, solve_cases
 
 MAX_DRIVERS = 5
 
@@ -83,11 +83,12 @@ def margins_at(targets: Sequence[Target], points: Sequence[OperatingPoint]) -> n
     return margins
 
 
-def swings(netlist: Netlist, targets: Sequence[Target], tolerances: Sequence[Tolerance]) -> dict[Key, Swing]:
+def swings(netlist: Netlist, targets: Sequence[Target], tolerances: Sequence[Tolerance],
+           cache: Cache | None = None) -> dict[Key, Swing]:
     """Every target's Swing over every tolerance: 2 x len(tolerances) solves, in one batch."""
     tolerances = tuple(tolerances)
     moved = [perturbed(netlist, {t.part: sign * t.fraction}) for sign in (1.0, -1.0) for t in tolerances]
-    margins = margins_at(targets, solve_cases(moved))
+    margins = margins_at(targets, solve_cases(moved, cache))
     count = len(tolerances)
     return {target.key: Swing(tolerances, margins[:count, column], margins[count:, column])
             for column, target in enumerate(targets)}

@@ -22,7 +22,7 @@ from checker.analysis.tolerances import Tolerance, corner_label, perturbed, tole
 from checker.design import Design, Netlist, OperatingPoint
 from checker.errors import DesignError
 from checker.findings import Outcome
-from checker.solver import solve_cases
+from checker.solver import Cache, solve_cases
 
 MAX_TOLERANCED_PARTS = 200  # per case: 2 solves each, plus two corners per limit item
 NOMINAL = "nominal"
@@ -44,25 +44,26 @@ def _corner(signs: Signs, swing: Swing) -> list[tuple[str, float]]:
 
 
 def _solve_corners(netlist: Netlist, tolerances: Sequence[Tolerance],
-                   wanted: set[Signs]) -> dict[Signs, OperatingPoint]:
+                   wanted: set[Signs], cache: Cache | None) -> dict[Signs, OperatingPoint]:
     """Operating points at every wanted corner, in one batch."""
     corners = sorted(wanted)
     moved = [perturbed(netlist, {t.part: s * t.fraction for t, s in zip(tolerances, signs) if s})
              for signs in corners]
-    return dict(zip(corners, solve_cases(moved)))
+    return dict(zip(corners, solve_cases(moved, cache)))
 
 
-def case_worst(netlist: Netlist, point: OperatingPoint, targets: Sequence[Target],
-               tolerances: Sequence[Tolerance]) -> dict[Key, tuple[Outcome, tuple[tuple[str, float], ...]]]:
-    """Each present target's worst outcome in one case over the tolerance box, with its drivers."""
+def case_worst(netlist: Netlist, point: OperatingPoint, targets: Sequence[Target], tolerances: Sequence[Tolerance],
+               cache: Cache | None = None) -> dict[Key, tuple[Outcome, tuple[tuple[str, float], ...]]]:
+    """Each present target's worst outcome in one case over the tolerance box, with its drivers;
+    `cache` keeps the solver's per-topology work across the batches."""
     nominal = outcomes_at(targets, point)
     present = [t for t in targets if t.key in nominal]
     if not tolerances or not present:
         return {key: (outcome, ()) for key, outcome in nominal.items()}
-    swing = swings(netlist, present, tolerances)
+    swing = swings(netlist, present, tolerances, cache)
     signs = {t.key: tuple(int(s) for s in swing[t.key].lowering_signs()) for t in present}
     wanted = {s for key in signs for s in (signs[key], tuple(-x for x in signs[key])) if any(s)}
-    points = _solve_corners(netlist, tolerances, wanted)
+    points = _solve_corners(netlist, tolerances, wanted, cache)
     result = {}
     for target in present:
         key = target.key
@@ -82,10 +83,11 @@ def worst_case(design: Design, points: Sequence[OperatingPoint],
                targets: Sequence[Target]) -> dict[Key, list[tuple[Outcome, tuple[tuple[str, float], ...]]]]:
     """Per target, its worst outcome and drivers in each case it applies to, in case order."""
     found: dict[Key, list] = {}
+    cache = Cache()
     for netlist, point in zip(design.netlists, points):
         active = [t for t in targets if t.limit.applies_to(netlist.case)]
         tolerances = toleranced(netlist)
         _bounded(design, netlist, tolerances)
-        for key, pair in case_worst(netlist, point, active, tolerances).items():
+        for key, pair in case_worst(netlist, point, active, tolerances, cache).items():
             found.setdefault(key, []).append(pair)
     return found

@@ -111,6 +111,10 @@ class Device:
     kind: ClassVar[str]
     pins: ClassVar[tuple[str, ...]] = ("from", "to")
     nonlinear: ClassVar[bool] = False
+    rhs_units: ClassVar[frozenset[str]] = frozenset()
+    """Units of primary values that enter only `sources()` (the right-hand side), never the matrix,
+    the branch numbering or a nonlinear law: netlists differing only in such values share one
+    assembled system and factorisation (`checker.solver`)."""
 
     def __init__(self, parts: Sequence[Part], nodes: np.ndarray, first_branch: int, ambient: float):
         self.parts = tuple(parts)

@@ -22,6 +22,7 @@ class Source(LinearTwoTerminal):
     """A voltage source (value in V) or a current source (value in A)."""
 
     kind = "source"
+    rhs_units = frozenset({"V", "A"})
 
     @classmethod
     def describe(cls, part: Part) -> str:
@@ -51,6 +52,7 @@ class Load(LinearTwoTerminal):
     """
 
     kind = "load"
+    rhs_units = frozenset({"A"})
 
     def __init__(self, parts: Sequence[Part], nodes: np.ndarray, first_branch: int, ambient: float):
         super().__init__(parts, nodes, first_branch, ambient)

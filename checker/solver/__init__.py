@@ -1,9 +1,14 @@
 """DC operating points by modified nodal analysis.
 
-`solve` handles one netlist; `solve_cases` handles many and factorises each distinct
-system matrix once, so cases that only change source values (same topology, same
-part values, same ambient) share one sparse LU factorisation. Every circuit is
-diagnosed from its graph before factorising (see `diagnosis`).
+`solve` handles one netlist; `solve_cases` handles many and shares work between them:
+- netlists that differ only in source values (same parts, part values and ambient;
+  see `sharing`) share one assembled system: one set of devices, one diagnosis and,
+  when linear, one sparse LU factorisation solved for all their right-hand sides;
+  when nonlinear, Newton-Raphson runs per netlist on the shared devices;
+- netlists with the same parts' kinds and pins (a topology) share the numbering of
+  nets, the kind groups, passed diagnoses and Jacobian sparsity patterns (see
+  `topology`); pass one `Cache` to many calls (as Monte Carlo does) to keep these.
+Every circuit is diagnosed from its graph before factorising (see `diagnosis`).
 """
 
 from __future__ import annotations
@@ -13,43 +18,62 @@ from typing import Sequence
 import numpy as np
 
 from checker.design import Netlist, OperatingPoint
-from checker.solver.assembly import System, assemble
+from checker.solver.assembly import System, assemble, with_sources
 from checker.solver.diagnosis import diagnose
 from checker.solver.linear import Factor
 from checker.solver.newton import check_models, newton
 from checker.solver.results import operating_point
+from checker.solver.sharing import Group, signature
+from checker.solver.topology import Cache
 
 
-def solve(netlist: Netlist) -> OperatingPoint:
+def solve(netlist: Netlist, cache: Cache | None = None) -> OperatingPoint:
     """The operating point of one netlist; NoSolutionError or DesignError when there is none."""
-    return solve_cases([netlist])[0]
+    return solve_cases([netlist], cache)[0]
 
 
-def solve_cases(netlists: Sequence[Netlist]) -> list[OperatingPoint]:
-    """Operating points in the order given; linear cases with equal matrices share one LU factorisation."""
-    systems = [_prepared(netlist) for netlist in netlists]
+def solve_cases(netlists: Sequence[Netlist], cache: Cache | None = None) -> list[OperatingPoint]:
+    """Operating points in the order given (results as if each netlist were solved alone).
+
+    Every netlist is assembled and diagnosed, in order, before any is solved, so input
+    errors come first. `cache` keeps topologies across calls; by default one per call.
+    """
+    cache = Cache() if cache is None else cache
+    groups, systems = _grouped(netlists, cache)
     points: list[OperatingPoint | None] = [None] * len(systems)
-    groups: dict[bytes, list[int]] = {}
     for position, system in enumerate(systems):
         if system.nonlinear_devices:
             x, iterations, strategy = newton(system)
             check_models(system, x)
             points[position] = operating_point(system, x, iterations, strategy)
-        else:
-            groups.setdefault(system.fingerprint(), []).append(position)
-    for members in groups.values():
-        first = systems[members[0]]
-        factor = Factor(first.matrix, first.netlist)
-        solutions = factor.solve(np.column_stack([systems[m].rhs for m in members]))
-        for column, position in enumerate(members):
-            points[position] = operating_point(systems[position], solutions[:, column], 1, "linear")
+    for group in groups:
+        if not group.system.nonlinear_devices:
+            factor = Factor(group.system.matrix, group.netlist)
+            solutions = factor.solve(np.column_stack([systems[m].rhs for m in group.members]))
+            for column, position in enumerate(group.members):
+                points[position] = operating_point(systems[position], solutions[:, column], 1, "linear")
     return points  # type: ignore[return-value]
 
 
-def _prepared(netlist: Netlist) -> System:
-    system = assemble(netlist)
-    diagnose(system)
-    return system
+def _grouped(netlists: Sequence[Netlist], cache: Cache) -> tuple[list[Group], list[System]]:
+    """Each netlist's system, assembled once per group of netlists that can share it."""
+    groups: list[Group] = []
+    systems: list[System] = []
+    for position, netlist in enumerate(netlists):
+        topology = cache.topology(netlist)
+        candidates = [group for group in groups if group.system.topology is topology]
+        mark = signature(netlist, topology) if candidates else None
+        group = next((g for g in candidates if g.admits(netlist, mark)), None)
+        if group is None:
+            system = assemble(netlist, topology)
+            diagnose(system)
+            group = Group(system, _signature=mark)
+            groups.append(group)
+        else:
+            system = with_sources(group.system, netlist)
+        group.members.append(position)
+        systems.append(system)
+    return groups, systems
 
 
-__all__ = ["solve", "solve_cases"]
+__all__ = ["Cache", "solve", "solve_cases"]

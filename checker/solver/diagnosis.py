@@ -26,11 +26,19 @@ MAX_NAMED = 6  # parts or nets named in one message before "and N more"
 
 
 def diagnose(system: System) -> None:
-    """Raise NoSolutionError for floating nets, current-source cut sets or voltage loops."""
-    a, b, kind, part = _edges(system)
+    """Raise NoSolutionError for floating nets, current-source cut sets or voltage loops.
+
+    The verdict depends only on the edges, so an edge set that passed once for the
+    system's topology is not examined again.
+    """
+    edges = _edges(system)
+    if system.topology.diagnosed(edges):
+        return
+    a, b, kind, part = edges
     _check_floating(system, a, b, kind, part)
     voltage = kind == EdgeKind.VOLTAGE
     _check_loops(system, a[voltage], b[voltage], part[voltage])
+    system.topology.remember_passed(edges)
 
 
 def _edges(system: System) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:

@@ -27,6 +27,7 @@ from checker.devices import DEVICES
 from checker.errors import NoSolutionError
 from checker.solver.assembly import System
 from checker.solver.linear import Factor
+from checker.solver.topology import Pattern
 
 VOLTAGE_ABSTOL = 1e-9  # V: smallest voltage step (and branch-equation residual) that still counts
 CURRENT_ABSTOL = 1e-12  # A: smallest current step (and KCL residual) that still counts
@@ -55,24 +56,16 @@ STRATEGIES = {
 
 
 class Equations:
-    """F(x) and J(x) of one system, with the Jacobian's pattern fixed on construction."""
+    """F(x) and J(x) of one system; the Jacobian's sparsity pattern is the topology's (see `topology`)."""
 
     def __init__(self, system: System):
         self.system = system
         self.size, self.nodes = system.size, system.n_nodes
         self.devices = system.nonlinear_devices
         self.netlist = system.netlist
-        coo = system.matrix.tocoo()
+        self.constant = system.matrix.tocoo()
         self.magnitude = abs(system.matrix)
-        layouts = [device.evaluate(np.zeros(self.size + 1)) for device in self.devices]
-        self.keep = [(s.rows >= 0, (s.jacobian.rows >= 0) & (s.jacobian.cols >= 0)) for s in layouts]
-        diagonal = np.arange(self.nodes)
-        rows = np.concatenate([coo.row] + [s.jacobian.rows[k] for s, (_, k) in zip(layouts, self.keep)] + [diagonal])
-        cols = np.concatenate([coo.col] + [s.jacobian.cols[k] for s, (_, k) in zip(layouts, self.keep)] + [diagonal])
-        keys, self.slot = np.unique(cols.astype(np.int64) * self.size + rows, return_inverse=True)
-        self.indices = keys % self.size
-        self.indptr = np.searchsorted(keys // self.size, np.arange(self.size + 1))
-        self.constant = coo.data
+        self.pattern: Pattern | None = None  # fixed by the first linearisation: device layouts do not depend on x
 
     def linearise(self, x: np.ndarray, gmin: float = 0.0, scale: float = 1.0,
                   first: bool = False) -> tuple[np.ndarray, sp.csc_matrix, np.ndarray]:
@@ -80,19 +73,29 @@ class Equations:
         x_ext = np.append(x, 0.0)
         residual = self.system.matrix @ x - scale * self.system.rhs
         row_scale = self.magnitude @ np.abs(x) + scale * np.abs(self.system.rhs)
-        values = [self.constant]
-        for device, (keep_rows, keep_jac) in zip(self.devices, self.keep):
+        values, layout = [self.constant.data], [(self.constant.row, self.constant.col)]
+        for device in self.devices:
             device.scale = scale
             s = device.first_guess(x_ext) if first else device.evaluate(x_ext)
+            keep_rows, jacobian = s.rows >= 0, s.jacobian
+            keep = (jacobian.rows >= 0) & (jacobian.cols >= 0)
             rows, currents = s.rows[keep_rows], s.currents[keep_rows]
             residual += np.bincount(rows, currents, self.size)
             row_scale += np.bincount(rows, np.abs(currents), self.size)
-            values.append(s.jacobian.values[keep_jac])
+            values.append(jacobian.values[keep])
+            if self.pattern is None:
+                layout.append((jacobian.rows[keep], jacobian.cols[keep]))
         residual[:self.nodes] += gmin * x[:self.nodes]
         row_scale[:self.nodes] += gmin * np.abs(x[:self.nodes])
         values.append(np.full(self.nodes, gmin))
-        data = np.bincount(self.slot, np.concatenate(values), self.indices.size)
-        return residual, sp.csc_matrix((data, self.indices, self.indptr), shape=(self.size, self.size)), row_scale
+        if self.pattern is None:
+            diagonal = np.arange(self.nodes)
+            layout.append((diagonal, diagonal))
+            self.pattern = self.system.topology.pattern(np.concatenate([r for r, _ in layout]),
+                                                        np.concatenate([c for _, c in layout]), self.size)
+        data = self.pattern.data(np.concatenate(values))
+        jacobian = sp.csc_matrix((data, self.pattern.indices, self.pattern.indptr), shape=(self.size, self.size))
+        return residual, jacobian, row_scale
 
     def limit(self, x_new: np.ndarray, x_old: np.ndarray) -> np.ndarray:
         """The step's end after every device's junction-voltage limiting."""

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from checker.design import OperatingPoint, PartResult
+from checker.design import OperatingPoint, Part, PartResult
 from checker.devices import Device
 from checker.solver.assembly import System
 
@@ -17,7 +17,8 @@ def operating_point(system: System, x: np.ndarray, iterations: int, strategy: st
     x_ext = np.append(x, 0.0)
     nets = dict(zip(system.nets, [0.0] + x[:system.n_nodes].tolist()))
     groups = [_group_results(device, x_ext) for device in system.devices]
-    parts = PartResults([part.name for part in system.netlist.parts], groups, system.positions)
+    topology = system.topology
+    parts = PartResults(system.netlist.parts, groups, topology.group_of, topology.row_of)
     return OperatingPoint(system.netlist, nets, parts, iterations, strategy)
 
 
@@ -45,21 +46,22 @@ class PartResults(Mapping):
     """Part name -> PartResult, built on access from the solution's arrays.
 
     A 500 x 500 resistor grid has half a million parts; building every PartResult
-    up front would cost more than the factorisation.
+    (or even the index of names) up front would cost more than the factorisation.
     """
 
-    def __init__(self, names: list[str], groups: list[_Group], positions: list[np.ndarray]):
-        self._names = names
+    def __init__(self, parts: tuple[Part, ...], groups: list[_Group], group_of: np.ndarray, row_of: np.ndarray):
+        self._parts = parts
         self._groups = groups
-        self._position = {name: position for position, name in enumerate(names)}
-        self._group = np.empty(len(names), dtype=np.int64)
-        self._row = np.empty(len(names), dtype=np.int64)
-        for number, members in enumerate(positions):
-            self._group[members] = number
-            self._row[members] = np.arange(members.size)
+        self._group, self._row = group_of, row_of  # each part's device and its row there, in netlist order
+        self._position: dict[str, int] | None = None
+
+    def _index(self) -> dict[str, int]:
+        if self._position is None:
+            self._position = {part.name: position for position, part in enumerate(self._parts)}
+        return self._position
 
     def __getitem__(self, name: str) -> PartResult:
-        position = self._position[name]
+        position = self._index()[name]
         group, row = self._groups[self._group[position]], int(self._row[position])
         pins = dict(zip(group.pins, group.currents[row].tolist()))
         power = float(group.power[row])
@@ -67,11 +69,14 @@ class PartResults(Mapping):
             return PartResult(power, pins)
         return PartResult(power, pins, float(group.voltage[row]), pins["from"])
 
+    def __contains__(self, name: object) -> bool:
+        return name in self._index()
+
     def __iter__(self) -> Iterator[str]:
-        return iter(self._names)
+        return (part.name for part in self._parts)
 
     def __len__(self) -> int:
-        return len(self._names)
+        return len(self._parts)
 
     def __repr__(self) -> str:
         return f"PartResults({len(self)} parts)"
