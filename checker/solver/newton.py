@@ -5,8 +5,8 @@ sources scaled by s, the nonlinear devices' currents, and a conductance gmin fro
 every net to ground. Each step solves J dx = -F with J = A + df/dx + gmin I
 (Newton-Raphson as applied to circuits in Vlach & Singhal, "Computer Methods for
 Circuit Analysis and Design", 1983, ch. 10 — chapter from memory). The Jacobian's
-sparsity pattern is worked out once per circuit; each iteration only refills its
-values with one vectorised pass per device kind.
+sparsity pattern is worked out once per topology and layout (kept in `topology`);
+each iteration only refills its values with one vectorised pass per device kind.
 
 Plain Newton (s = 1, gmin = 0) starts from a first guess: one linear solve with
 every device linearised at 0 V (constant-power loads standing aside). When it does

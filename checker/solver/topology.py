@@ -11,7 +11,8 @@ patterns. A `Cache` keeps topologies across `solve_cases` calls, bounded in numb
 from __future__ import annotations
 
 from dataclasses import dataclass
-from operator import attrgetter
+from itertools import chain
+from operator import attrgetter, itemgetter
 
 import numpy as np
 
@@ -23,6 +24,7 @@ MAX_TOPOLOGIES = 16  # kept by one Cache, the least recently used dropped first
 MAX_REMEMBERED = 8  # passed diagnoses and sparsity patterns kept per topology
 
 _KIND, _PINS = attrgetter("kind"), attrgetter("pins")
+_FIRST, _SECOND = itemgetter(0), itemgetter(1)
 
 
 @dataclass(frozen=True)
@@ -67,16 +69,23 @@ class Topology:
 
     def __init__(self, netlist: Netlist, kinds: list[str], pins: list[tuple[tuple[str, str], ...]]):
         self.ground, self.kinds, self.pins = netlist.ground, kinds, pins
-        pin_nets = [net for part_pins in pins for _, net in part_pins]
+        pairs = list(chain.from_iterable(pins))
+        pin_nets = list(map(_SECOND, pairs))
         self.nets = tuple(dict.fromkeys([netlist.ground] + pin_nets))  # the order of Netlist.nets
-        index = {net: position - 1 for position, net in enumerate(self.nets)}  # ground -> -1
+        index = dict(zip(self.nets, range(-1, len(self.nets) - 1)))  # ground -> -1
         unknowns = np.fromiter(map(index.__getitem__, pin_nets), np.int64, len(pin_nets))
-        first_pin = np.cumsum([0] + list(map(len, pins)))
+        counts = list(map(len, pins))
+        first_pin = np.cumsum([0] + counts)
+        by_kind = _by_kind(kinds)
+        classes = {kind: _device_class(kind, netlist.parts[int(members[0])]) for kind, members in by_kind.items()}
+        expected = {kind: cls.pins for kind, cls in classes.items()}
+        if (counts != list(map(len, map(expected.__getitem__, kinds)))
+                or list(map(_FIRST, pairs)) != list(chain.from_iterable(map(expected.__getitem__, kinds)))):
+            for kind, members in by_kind.items():
+                _check_pins(classes[kind], [netlist.parts[m] for m in members.tolist()])
         self.groups: list[KindGroup] = []
-        for kind, members in _by_kind(kinds).items():
-            group = [netlist.parts[m] for m in members.tolist()]
-            cls = _device_class(kind, group[0])
-            _check_pins(cls, group)
+        for kind, members in by_kind.items():
+            cls = classes[kind]
             nodes = unknowns[first_pin[members][:, None] + np.arange(len(cls.pins))]
             self.groups.append(KindGroup(cls, members, nodes))
         self.group_of = np.empty(len(kinds), dtype=np.int64)  # each part's device, in `groups` order
@@ -122,6 +131,9 @@ class Cache:
     def __init__(self) -> None:
         self._topologies: list[Topology] = []
 
+    def __len__(self) -> int:
+        return len(self._topologies)
+
     def topology(self, netlist: Netlist) -> Topology:
         kinds, pins = list(map(_KIND, netlist.parts)), list(map(_PINS, netlist.parts))
         for topology in self._topologies:
@@ -147,7 +159,8 @@ def _device_class(kind: str, part: Part) -> type[Device]:
 
 
 def _check_pins(cls: type[Device], parts: list[Part]) -> None:
-    """Every part names the kind's pins in the kind's order (the kind table guarantees it)."""
+    """Every part names the kind's pins in the kind's order (the kind table guarantees it);
+    called to word the error once the quick check of all pins at once has failed."""
     pins = [pin for part in parts for pin, _ in part.pins]
     if pins != list(cls.pins) * len(parts) or {len(part.pins) for part in parts} != {len(cls.pins)}:
         wrong = next(part for part in parts if tuple(pin for pin, _ in part.pins) != cls.pins)
