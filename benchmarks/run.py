@@ -8,6 +8,7 @@ on the machine); docs/models.md ("Performance") records the figures and how to r
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import datetime
 import sys
@@ -181,24 +182,63 @@ def example_board() -> tuple:
     return designs, compile_limits(load_limit_files(config), designs)
 
 
+@contextlib.contextmanager
+def counted_starts(warm: bool) -> Iterator[list[int]]:
+    """Tolerance analyses with warm starts on, or off (every board solved from the solver's first
+    guess, as before warm starts); yields the Newton iterations of every nonlinear solve."""
+    from checker.analysis import montecarlo, sensitivity, worstcase
+    spent: list[int] = []
+
+    def solve(netlists, cache=None, guesses=None):
+        points = solve_cases(netlists, cache, guesses if warm else None)
+        spent.extend(p.iterations for p in points if p.strategy != "linear")
+        return points
+    saved = [(module, module.solve_cases) for module in (montecarlo, sensitivity, worstcase)]
+    for module, _ in saved:
+        module.solve_cases = solve
+    try:
+        yield spent
+    finally:
+        for module, original in saved:
+            module.solve_cases = original
+
+
 def bench_example_monte_carlo(samples: int = 200) -> Iterator[Figure]:
-    """Monte Carlo on the example board: every sample solves every case with Newton-Raphson."""
+    """Monte Carlo on the example board: every sample solves every case with Newton-Raphson, started
+    at the case's nominal point (warm) or, for comparison, at the solver's first guess (cold)."""
     from checker.analysis import analyse
     from checker.findings import Analysis
     designs, limit_set = example_board()
     design = designs[0]
     cases = len(design.netlists)
     today = datetime.date(2030, 1, 1)
-    seconds = _seconds(lambda: analyse(limit_set, designs, today, Analysis("monte-carlo", samples, 1)), REPEATS)
     iterations = sum(point.iterations for point in solve_cases(design.netlists)) / cases
-    yield f"monte-carlo on the example board ({len(design.parts)} parts, {cases} nonlinear cases)", seconds, "s"
-    yield "  samples per second", samples / seconds, "/s"
-    yield "  per case solved", 1e3 * seconds / (samples * cases), "ms"
+    yield f"monte-carlo on the example board ({len(design.parts)} parts, {cases} nonlinear cases)", samples, "samples"
     yield "  Newton iterations per nominal case", iterations, ""
+    for label, warm in (("warm", True), ("cold", False)):
+        with counted_starts(warm) as spent:
+            seconds = _seconds(lambda: analyse(limit_set, designs, today, Analysis("monte-carlo", samples, 1)), REPEATS)
+        yield f"  {label} starts: samples per second", samples / seconds, "/s"
+        yield f"  {label} starts: per case solved", 1e3 * seconds / (samples * cases), "ms"
+        yield f"  {label} starts: Newton iterations per solve", sum(spent) / len(spent), ""
+
+
+def bench_example_worst_case() -> Iterator[Figure]:
+    """Worst-case corners of the example board (swings and corners of every case), warm and cold."""
+    from checker.analysis import analyse
+    from checker.findings import Analysis
+    designs, limit_set = example_board()
+    today = datetime.date(2030, 1, 1)
+    for label, warm in (("warm", True), ("cold", False)):
+        with counted_starts(warm) as spent:
+            seconds = _seconds(lambda: analyse(limit_set, designs, today, Analysis("worst-case")), REPEATS)
+        yield f"worst-case analysis of the example board, {label} starts", seconds, "s"
+        yield f"  {label} starts: Newton iterations per solve", sum(spent) / len(spent), ""
 
 
 BENCHMARKS: list[Callable[[], Iterator[Figure]]] = [bench_large_grid, bench_cases, bench_nonlinear,
-                                                     bench_tolerances, bench_example_monte_carlo]
+                                                     bench_tolerances, bench_example_monte_carlo,
+                                                     bench_example_worst_case]
 
 
 def main() -> None:

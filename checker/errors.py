@@ -82,10 +82,13 @@ def _source_line(location: Location) -> str | None:
 # Shown source lines are cut to this many characters around the column, so a
 # minified or generated file cannot flood a CI log with one megabyte-long line.
 SHOWN_WIDTH = 120
-# Characters that would drive the terminal rather than print: C0/C1 controls (escape
-# sequences, carriage returns) and the bidirectional overrides that make text read
-# differently from what it is. Each is shown as one `?`, so columns stay right.
-_UNPRINTABLE = re.compile("[\x00-\x08\x0a-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
+# Characters that would drive the terminal rather than print: C0/C1 controls other
+# than tab and newline (escape sequences, carriage returns) and the bidirectional
+# overrides that make text read differently from what it is. Input text that reaches
+# reports (titles, `about`, `reason`) is refused when it holds one.
+CONTROL_CHARACTER = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
+# In a one-line message a newline is unprintable too; each is shown as one `?`, so columns stay right.
+_UNPRINTABLE = re.compile(f"\n|{CONTROL_CHARACTER.pattern}")
 
 
 def printable(text: str) -> str:
@@ -122,7 +125,6 @@ def render(error: NodegateError) -> str:
     return "\n".join(lines)
 
 
-
 def nearest(word: str, choices) -> str | None:
     """The choice most like a mistyped `word`, for "did you mean" hints; None when nothing is close."""
     found = difflib.get_close_matches(str(word), [str(c) for c in choices], n=1, cutoff=0.6)
@@ -133,3 +135,12 @@ def did_you_mean(word: str, choices) -> tuple[str, ...]:
     """A one-note tuple `did you mean `x`?` when some choice is close, else ()."""
     close = nearest(word, choices)
     return (f"did you mean `{close}`?",) if close else ()
+
+
+def shown_path(path: Path | str) -> str:
+    """A path as messages show it: relative to the working folder when inside it, so that
+    every error of one run (configuration, circuits, limits) names its file the same way."""
+    try:
+        return str(Path(path).relative_to(Path.cwd()))
+    except ValueError:
+        return str(path)

@@ -9,11 +9,10 @@ solver time. Solving and evaluating follow the configuration's tolerance analysi
 from __future__ import annotations
 
 import datetime
-from pathlib import Path
 from typing import Callable
 
 from checker.design import Design
-from checker.errors import DesignError
+from checker.errors import DesignError, shown_path
 from checker.analysis import analyse
 from checker.findings import Analysis, Findings
 from checker.language import load_design
@@ -23,19 +22,11 @@ from checker.repo.config import Config
 Progress = Callable[[str], None]
 
 
-def shown(path: Path) -> str:
-    """A path as the user should see it in messages: relative to the working folder when inside it."""
-    try:
-        return str(path.relative_to(Path.cwd()))
-    except ValueError:
-        return str(path)
-
-
 def load_designs(config: Config) -> list[Design]:
     """Elaborate every circuit; circuit names must be unique across the repository."""
     designs: list[Design] = []
     for path in config.circuits:
-        design = load_design(shown(path), root=config.root)
+        design = load_design(shown_path(path), root=config.root)
         twin = next((d for d in designs if d.name == design.name), None)
         if twin is not None:
             raise DesignError(f"circuit name `{design.name}` is used twice (also in `{twin.path}`); "
@@ -45,7 +36,7 @@ def load_designs(config: Config) -> list[Design]:
 
 
 def load_limit_files(config: Config) -> list[LimitFile]:
-    return [load_pack(source.pack, source.location) if source.pack else load_limit_file(shown(source.path))
+    return [load_pack(source.pack, source.location) if source.pack else load_limit_file(shown_path(source.path))
             for source in config.limits]
 
 

@@ -52,7 +52,7 @@ _DISPLAY: dict[Dim, str] = {
     VOLT: "V", AMPERE: "A", WATT: "W", OHM: "Ω", SIEMENS: "S", FARAD: "F",
     HENRY: "H", KELVIN: "K", SECOND: "s", DIMENSIONLESS: "",
     (-1, -2, 3, 0, 1): "K/W", (0, 0, 0, 0, -1): "1/K", (1, 2, -3, -1, -1): "V/K",
-    (-1, -2, 3, 2, 0): "S", (-2, -4, 6, 3, 0): "A/V²", (-1, -2, 3, 1, 0): "1/V",
+    (-2, -4, 6, 3, 0): "A/V²", (-1, -2, 3, 1, 0): "1/V",
 }
 _BASE_NAMES = ("kg", "m", "s", "A", "K")
 
@@ -95,7 +95,7 @@ def unit_scale(symbol: str) -> tuple[float, Dim, bool] | None:
     """Scale, dimension and absolute-temperature flag of one unit symbol with an optional prefix.
 
     Returns None when the symbol is not a unit. `degC` is absolute: its scale is 1 and
-    the caller adds ZERO_CELSIUS (see `quantity`).
+    `quantity` adds ZERO_CELSIUS.
     """
     if symbol == "degC":
         return 1.0, KELVIN, True
@@ -110,11 +110,17 @@ def unit_scale(symbol: str) -> tuple[float, Dim, bool] | None:
 
 
 def quantity(number: float, symbol: str) -> Quantity:
-    """`quantity(4.7, "kohm")` -> Quantity(4700.0, OHM). Raises KeyError for an unknown unit."""
-    found = unit_scale(symbol)
-    if found is None:
-        raise KeyError(symbol)
-    scale, dim, absolute = found
+    """A number as written with its unit: `quantity(4.7, "kohm")` -> Quantity(4700.0, OHM).
+
+    The one conversion of literals for both the circuit and the limit language, so that
+    the same text gives the same float in both: a sign belongs to the written number
+    (`quantity(-20, "degC")` is -20 + 273.15 K). `symbol` is any unit `parse_unit`
+    reads; an empty one is a plain number. ValueError for a unit that is not one,
+    OverflowError for a power too large to represent.
+    """
+    if not symbol:
+        return Quantity(number)
+    scale, dim, absolute = parse_unit(symbol)
     if absolute:
         return Quantity(number + ZERO_CELSIUS, KELVIN, True)
     return Quantity(number * scale, dim)
@@ -143,16 +149,9 @@ def format_value(value: float, symbol: str, digits: int = 3) -> str:
     return f"{scaled:.{decimals}f} {prefix}{symbol}".rstrip()
 
 
-def format_temperature(kelvin: float, digits: int = 3) -> str:
+def format_temperature(kelvin: float) -> str:
     """An absolute temperature in degrees Celsius: `85.0 °C`."""
     return f"{kelvin - ZERO_CELSIUS:.1f} °C"
-
-
-def format_quantity(value: float, dim: Dim, absolute: bool = False) -> str:
-    """Format an SI value of a dimension, with temperatures in °C when absolute."""
-    if absolute:
-        return format_temperature(value)
-    return format_value(value, display_symbol(dim))
 
 
 def parse_unit(text: str) -> tuple[float, Dim, bool]:

@@ -6,7 +6,9 @@ may override `tol`, which scales the same u). The draws come from
 numpy.random.default_rng seeded with (seed, CRC-32 of the circuit name), so the same
 seed gives the same report, and adding a circuit does not change another's draws.
 Per item: the worst margin observed in each case (corner "sample N"), and the share
-of samples in which the item fails in at least one of its cases.
+of samples in which the item fails in at least one of its cases. Newton-Raphson
+starts each sample's case at that case's nominal operating point (a warm start, see
+docs/analysis.md).
 """
 
 from __future__ import annotations
@@ -83,7 +85,7 @@ def monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Seque
     cache = Cache()  # every sample has the nominal topologies: number nets and find patterns once
     for sample in range(1, samples + 1):
         draw = dict(zip(names, rng.uniform(-1.0, 1.0, len(names))))
-        solved = solve_cases(_board(netlists, tolerances, draw), cache)
+        solved = solve_cases(_board(netlists, tolerances, draw), cache, points)
         tally.add({p.case: outcomes_at(active[p.case], p, f"sample {sample}") for p in solved})
         if sample % step == 0 or sample == samples:
             report(f"{design.name}: {sample} of {samples} samples")

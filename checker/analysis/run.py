@@ -73,14 +73,16 @@ def _worst_case(design: Design, points: Sequence[OperatingPoint], targets: Seque
     return results
 
 
-def _local_drivers(design: Design, targets: Sequence[Target], worst_case_of: dict[Key, str]) -> dict[Key, Drivers]:
+def _local_drivers(design: Design, points: Sequence[OperatingPoint], targets: Sequence[Target],
+                   worst_case_of: dict[Key, str]) -> dict[Key, Drivers]:
     """Drivers from the Swing at the nominal point of each target's worst case (one batch per case)."""
     drivers: dict[Key, Drivers] = {}
-    for netlist in design.netlists:
+    for netlist, point in zip(design.netlists, points):
         group = [t for t in targets if worst_case_of.get(t.key) == netlist.case]
         tolerances = toleranced(netlist)
         if group and tolerances and len(tolerances) <= MAX_TOLERANCED_PARTS:
-            drivers.update({key: swing.drivers() for key, swing in swings(netlist, group, tolerances).items()})
+            found = swings(netlist, group, tolerances, nominal=point)
+            drivers.update({key: swing.drivers() for key, swing in found.items()})
     return drivers
 
 
@@ -90,7 +92,7 @@ def _monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Sequ
     cases = design.cases
     outcomes = {key: outcomes_in_order(tally, key, cases) for key in tally.worst}
     worst_case_of = {key: min(found, key=lambda o: o.margin).case for key, found in outcomes.items()}
-    drivers = _local_drivers(design, targets, worst_case_of)
+    drivers = _local_drivers(design, points, targets, worst_case_of)
     return {key: Result(tuple(found), drivers.get(key, ()), tally.failed.get(key, 0) / drawn)
             for key, found in outcomes.items()}
 

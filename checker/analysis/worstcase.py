@@ -7,7 +7,8 @@ of a range check (`x in lo .. hi`) may be decided by the other end of the range.
 A margin that is monotone in each value takes its extremes at corners of the box,
 so for linear circuits with small tolerances the corner found is the worst one.
 For nonlinear circuits monotonicity can fail; the reported margin is then the lowest
-of nominal, corner and mirror, never better than nominal.
+of nominal, corner and mirror, never better than nominal. Every perturbed netlist is
+solved starting at the case's nominal operating point (a warm start).
 """
 
 from __future__ import annotations
@@ -43,13 +44,13 @@ def _corner(signs: Signs, swing: Swing) -> list[tuple[str, float]]:
     return [(swing.tolerances[i].part, signs[i] * swing.tolerances[i].fraction) for i in order if signs[i]]
 
 
-def _solve_corners(netlist: Netlist, tolerances: Sequence[Tolerance],
-                   wanted: set[Signs], cache: Cache | None) -> dict[Signs, OperatingPoint]:
-    """Operating points at every wanted corner, in one batch."""
+def _solve_corners(netlist: Netlist, tolerances: Sequence[Tolerance], wanted: set[Signs],
+                   cache: Cache | None, nominal: OperatingPoint) -> dict[Signs, OperatingPoint]:
+    """Operating points at every wanted corner, in one batch started at the nominal point."""
     corners = sorted(wanted)
     moved = [perturbed(netlist, {t.part: s * t.fraction for t, s in zip(tolerances, signs) if s})
              for signs in corners]
-    return dict(zip(corners, solve_cases(moved, cache)))
+    return dict(zip(corners, solve_cases(moved, cache, [nominal] * len(moved))))
 
 
 def case_worst(netlist: Netlist, point: OperatingPoint, targets: Sequence[Target], tolerances: Sequence[Tolerance],
@@ -60,10 +61,10 @@ def case_worst(netlist: Netlist, point: OperatingPoint, targets: Sequence[Target
     present = [t for t in targets if t.key in nominal]
     if not tolerances or not present:
         return {key: (outcome, ()) for key, outcome in nominal.items()}
-    swing = swings(netlist, present, tolerances, cache)
+    swing = swings(netlist, present, tolerances, cache, point)
     signs = {t.key: tuple(int(s) for s in swing[t.key].lowering_signs()) for t in present}
     wanted = {s for key in signs for s in (signs[key], tuple(-x for x in signs[key])) if any(s)}
-    points = _solve_corners(netlist, tolerances, wanted, cache)
+    points = _solve_corners(netlist, tolerances, wanted, cache, point)
     result = {}
     for target in present:
         key = target.key

@@ -7,9 +7,9 @@ import datetime
 import sys
 from pathlib import Path
 
-from checker.errors import ConfigError, NodegateError, render
+from checker.errors import ConfigError, NodegateError, render, shown_path
 from checker.findings import Findings
-from checker.pipeline import run_check, shown
+from checker.pipeline import run_check
 from checker.repo.baseline import compare, fail_exit_code
 from checker.repo.config import Config, find_config, load_config
 from checker.repo.git import repo_location, revision_checkout
@@ -36,7 +36,7 @@ def run(args: argparse.Namespace) -> int:
     for line in summary_lines(findings):
         print(line)
     for path in targets.values():
-        print(f"report: {shown(path)}")
+        print(f"report: {shown_path(path)}")
     code = fail_exit_code(findings, args.fail_on, args.strict)
     if code and args.strict and not fail_exit_code(findings, args.fail_on):
         print("nodegate: fails under --strict: warnings and unused waivers count as failures.")

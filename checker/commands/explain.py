@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import argparse
 import datetime
-import difflib
 from pathlib import Path
 
 from checker.analysis import analyse
@@ -19,7 +18,7 @@ from checker.analysis.run import targets_of
 from checker.analysis.sensitivity import Swing, swings
 from checker.analysis.tolerances import percent, primary_values, toleranced
 from checker.design import Design
-from checker.errors import ConfigError
+from checker.errors import ConfigError, did_you_mean
 from checker.findings import Finding, Findings, Limit
 from checker.limits import LimitFile, LimitSet, compile_limits
 from checker.pipeline import analysis_of, load_designs, load_limit_files
@@ -45,14 +44,12 @@ def run(args: argparse.Namespace) -> int:
 
 
 def find_limit(limit_id: str, files: list[LimitFile]) -> Limit:
-    """The limit with this id; ConfigError naming the nearest ids when there is none."""
+    """The limit with this id; ConfigError naming the nearest id when there is none."""
     limits = {limit.id: limit for file in files for limit in file.limits}
     if limit_id in limits:
         return limits[limit_id]
-    near = difflib.get_close_matches(limit_id, list(limits), n=3, cutoff=0.5)
-    hint = f"; did you mean {', '.join(f'`{n}`' for n in near)}?" if near else ""
-    notes = () if near else (f"the configuration's limits have {len(limits)} id(s)",)
-    raise ConfigError(f"no limit with id `{limit_id}`{hint}", None, notes)
+    notes = did_you_mean(limit_id, limits) or (f"the configuration's limits have {len(limits)} id(s)",)
+    raise ConfigError(f"no limit with id `{limit_id}`", None, notes)
 
 
 def _table(rows: list[list[str]], right: set[int]) -> list[str]:

@@ -8,6 +8,7 @@ from pathlib import Path
 from checker.analysis.run import located_at
 from checker.errors import DesignError, did_you_mean
 from checker.language import load_design
+from checker.repo.config import CONFIG_NAMES
 from checker.report import render_solve_json, render_solve_table
 from checker.solver import solve_cases
 
@@ -20,7 +21,7 @@ def repository_root(circuit: Path) -> Path:
     """
     folder = circuit.resolve().parent
     for candidate in (folder, *folder.parents):
-        if (candidate / "nodegate.yaml").is_file() or (candidate / "nodegate.yml").is_file():
+        if any((candidate / name).is_file() for name in CONFIG_NAMES):
             return candidate
     return folder
 

@@ -12,9 +12,8 @@ from pathlib import Path
 
 from checker.design import Design
 from checker.language.elaborate import elaborate
-from checker.language.files import MAX_FILE_BYTES, Loader, read_source
+from checker.language.files import Loader, read_source, text_source
 from checker.language.source import Source
-from checker.errors import DesignError
 
 __all__ = ["load_design", "parse_design"]
 
@@ -32,10 +31,7 @@ def load_design(path: str | Path, root: str | Path | None = None) -> Design:
 
 def parse_design(text: str, path: str = "<text>", root: str | Path | None = None) -> Design:
     """Elaborate circuit text held in memory; `path` is shown in messages and anchors `use`."""
-    if len(text.encode("utf-8", errors="surrogatepass")) > MAX_FILE_BYTES:
-        raise DesignError(f"`{path}` is larger than {MAX_FILE_BYTES // (1024 * 1024)} MiB")
-    source = Source(path, text.removeprefix("\ufeff").replace("\r\n", "\n"))
-    return _design(source, _existing(path), root)
+    return _design(text_source(text, path), _existing(path), root)
 
 
 def _existing(path: str) -> Path | None:

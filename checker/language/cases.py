@@ -10,8 +10,7 @@ from __future__ import annotations
 from dataclasses import replace
 
 from checker.design import Netlist, Part
-from checker.errors import DesignError, UnitError
-from checker.errors import nearest
+from checker.errors import DesignError, UnitError, did_you_mean
 from checker.kinds import KINDS
 from checker.language.expressions import Scope, dim_text, evaluate
 from checker.language.parts import check_complete, primary_value, property_value
@@ -65,12 +64,13 @@ class _Case:
             self.ambient = self.temperature(override)
             return
         path = ".".join(n.text for n in override.target)
+        owner = path.rpartition(".")[0]  # the part whose property `path` names, if it is one
         if override.absent:
             self.remove(path, override)
         elif path in self.parts:
             self.set_value(path, override)
-        elif len(override.target) > 1 and ".".join(path.split(".")[:-1]) in self.parts:
-            self.set_property(path.rsplit(".", 1)[0], override)
+        elif owner in self.parts:
+            self.set_property(owner, override)
         else:
             raise self.unknown(path, override)
 
@@ -89,11 +89,15 @@ class _Case:
         return value.value
 
     def remove(self, path: str, override: Override) -> None:
-        inside = [name for name in self.parts if name.startswith(path + ".")] if path in self.instances else []
-        if path not in self.parts and not inside:
+        """Not fitted in this case: a part, or every part of a block instance (which may hold none)."""
+        if path in self.parts:
+            self.parts[path] = None
+        elif path in self.instances:
+            for name in self.parts:
+                if name.startswith(path + "."):
+                    self.parts[name] = None
+        else:
             raise self.unknown(path, override)
-        for name in [path] if path in self.parts else inside:
-            self.parts[name] = None
 
     def set_value(self, name: str, override: Override) -> None:
         part = self.part(name, override)
@@ -127,5 +131,4 @@ class _Case:
         if instance is not None:
             return DesignError(f"`{instance}` is a block instance; a case sets the parts inside it "
                                f"(`{instance}.PART = VALUE`) or removes it (`{instance} = absent`)", location)
-        hint = nearest(path, self.parts)
-        return DesignError(f"no part `{path}`" + (f"; did you mean `{hint}`?" if hint else ""), location)
+        return DesignError(f"no part `{path}`", location, did_you_mean(path, self.parts))

@@ -25,7 +25,6 @@ MAX_BLOCK_DEPTH = 16  # blocks inside blocks
 MAX_PARTS = 100_000  # after every block is expanded
 
 
-
 def elaborate(found: list[Statement], top: Source) -> Design:
     """The Design described by the statements of a top-level file (libraries spliced in)."""
     circuit, ground = _header(found, top)

@@ -14,12 +14,10 @@ from typing import Mapping
 
 from lark import Tree
 
-from checker.errors import DesignError, Location, UnitError
-from checker.errors import nearest
+from checker.errors import DesignError, Location, UnitError, did_you_mean
 from checker.language.syntax import Expr
 from checker.units import (
-    DIMENSIONLESS, KELVIN, PREFIXES, UNITS, UNPREFIXED, ZERO_CELSIUS, Quantity, dim_div,
-    dim_mul, dim_name, dim_pow, parse_unit,
+    DIMENSIONLESS, PREFIXES, UNITS, UNPREFIXED, Quantity, dim_div, dim_mul, dim_name, dim_pow, quantity,
 )
 
 MAX_DEPTH = 100  # operators nested in one expression; deeper is an error, never a RecursionError
@@ -69,17 +67,13 @@ class _Evaluator:
 
     def quantity(self, node: Tree, sign: float = 1.0) -> Quantity:
         number, unit = node.children
-        value = sign * float(number)
-        if unit is None:
-            return Quantity(value)
-        symbol = str(unit).translate(_SPELLINGS)
+        symbol = "" if unit is None else str(unit).translate(_SPELLINGS)
         try:
-            scale, dim, absolute = parse_unit(symbol)
-        except (ValueError, OverflowError) as error:
-            raise UnitError(_unit_message(symbol, error), self.at(unit)) from None
-        if absolute:
-            return Quantity(value + ZERO_CELSIUS, KELVIN, True)
-        return Quantity(value * scale, dim)
+            return quantity(sign * float(number), symbol)
+        except ValueError as error:
+            raise UnitError(str(error), self.at(unit), did_you_mean(symbol, _ALL_UNITS)) from None
+        except OverflowError:
+            raise UnitError(f"the unit `{symbol}` is too large to represent", self.at(unit)) from None
 
     def ref(self, node: Tree) -> Quantity:
         token = node.children[0]
@@ -140,8 +134,7 @@ class _Evaluator:
     def call(self, node: Tree) -> Quantity:
         name, *args = node.children
         if str(name) not in _FUNCTIONS:
-            hint = nearest(str(name), _FUNCTIONS)
-            notes = (f"did you mean `{hint}`?",) if hint else (f"functions: {', '.join(_FUNCTIONS)}",)
+            notes = did_you_mean(str(name), _FUNCTIONS) or (f"functions: {', '.join(_FUNCTIONS)}",)
             raise DesignError(f"unknown function `{name}`", self.at(name), notes)
         values = [self.value(arg) for arg in args]
         return getattr(self, "call_" + str(name))(name, args, values)
@@ -191,15 +184,7 @@ class _Evaluator:
                             self.at(node))
 
 
-def _unit_message(symbol: str, error: Exception) -> str:
-    if isinstance(error, OverflowError):
-        return f"the unit `{symbol}` is too large to represent"
-    hint = nearest(symbol, _ALL_UNITS)
-    return f"{error}" + (f" (did you mean `{hint}`?)" if hint else "")
-
-
 def _undefined_notes(name: str, scope: Scope) -> tuple[str, ...]:
     if name in UNITS or name == "degC":
         return ("a unit follows its number: `0.02 V^-1`, `1 kohm`",)
-    hint = nearest(name, scope)
-    return (f"did you mean `{hint}`?",) if hint else ()
+    return did_you_mean(name, scope)

@@ -31,8 +31,24 @@ def read_source(path: Path, shown: str, location: Location | None) -> Source:
     except OSError as error:
         raise DesignError(f"cannot read `{shown}`: {error.strerror or error}", location) from None
     if len(data) > MAX_FILE_BYTES:
-        raise DesignError(f"`{shown}` is larger than {MAX_FILE_BYTES // (1024 * 1024)} MiB", location)
+        raise DesignError(_too_large(shown), location)
     return Source(shown, decode(data, shown))
+
+
+def text_source(text: str, shown: str) -> Source:
+    """Text held in memory, bounded and normalised exactly as a file read from disk would be."""
+    if len(text.encode("utf-8", errors="surrogatepass")) > MAX_FILE_BYTES:
+        raise DesignError(_too_large(shown))
+    return Source(shown, _normalised(text))
+
+
+def _too_large(shown: str) -> str:
+    return f"`{shown}` is larger than {MAX_FILE_BYTES // (1024 * 1024)} MiB"
+
+
+def _normalised(text: str) -> str:
+    """Without a byte-order mark, and with `\\n` line ends: columns count from the text as shown."""
+    return text.removeprefix("\ufeff").replace("\r\n", "\n")
 
 
 def decode(data: bytes, shown: str) -> str:
@@ -46,7 +62,7 @@ def decode(data: bytes, shown: str) -> str:
         column = len(data[start:error.start].decode("utf-8", errors="replace")) + 1
         location = Location(shown, data.count(b"\n", 0, error.start) + 1, column, line)
         raise CircuitSyntaxError(f"the file is not UTF-8 text (byte 0x{data[error.start]:02X})", location) from None
-    return text.removeprefix("\ufeff").replace("\r\n", "\n")
+    return _normalised(text)
 
 
 class Loader:

@@ -18,8 +18,8 @@ from dataclasses import dataclass
 
 from lark import Token, Tree
 
-from checker.errors import DesignError, NodegateError
-from checker.language.files import MAX_FILE_BYTES
+from checker.errors import NodegateError
+from checker.language.files import text_source
 from checker.language.parser import parse_tree
 from checker.language.source import Source
 
@@ -61,9 +61,7 @@ def format_circuit(text: str, path: str = "<text>") -> str:
     `path` is shown in error messages. Formatting is idempotent and keeps the design:
     the result elaborates to the same parts, values and cases.
     """
-    if len(text.encode("utf-8", errors="surrogatepass")) > MAX_FILE_BYTES:
-        raise DesignError(f"`{path}` is larger than {MAX_FILE_BYTES // (1024 * 1024)} MiB")
-    source = Source(path, text.removeprefix("\ufeff").replace("\r\n", "\n"))
+    source = text_source(text, path)
     tree, tokens, comments = _read(source)
     layout = _Layout(tokens, comments)
     layout.scope([c for c in tree.children if isinstance(c, Tree)], 1, len(source.lines), 0)

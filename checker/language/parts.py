@@ -8,8 +8,7 @@ absent; the devices fill their defaults.
 from __future__ import annotations
 
 from checker.design import Part
-from checker.errors import DesignError, Location, UnitError
-from checker.errors import nearest
+from checker.errors import DesignError, Location, UnitError, did_you_mean
 from checker.kinds import KINDS, VALUE_UNITS, Kind
 from checker.language.expressions import Scope, dim_text, evaluate
 from checker.language.syntax import Expr, Name, PartStatement, Prop
@@ -17,8 +16,7 @@ from checker.units import DIMENSIONLESS, dim_name
 
 
 def unknown_kind(kind: Name, blocks) -> DesignError:
-    hint = nearest(kind.text, [*KINDS, *blocks])
-    notes = (f"did you mean `{hint}`?",) if hint else (f"part kinds: {', '.join(KINDS)}",)
+    notes = did_you_mean(kind.text, [*KINDS, *blocks]) or (f"part kinds: {', '.join(KINDS)}",)
     return DesignError(f"unknown part kind `{kind.text}`", kind.location, notes)
 
 
@@ -30,9 +28,7 @@ def ordered_nets(statement: PartStatement, pins: tuple[str, ...], what: str) -> 
         if pin.text in given:
             raise DesignError(f"pin `{pin.text}` is connected twice", pin.location, (listing,))
         if pin.text not in pins:
-            hint = nearest(pin.text, pins)
-            raise DesignError(f"{what} has no pin `{pin.text}`" + (f"; did you mean `{hint}`?" if hint else ""),
-                              pin.location, (listing,))
+            raise DesignError(f"{what} has no pin `{pin.text}`", pin.location, did_you_mean(pin.text, pins) + (listing,))
         given[pin.text] = net
     missing = [pin for pin in pins if pin not in given]
     if missing:
@@ -109,9 +105,9 @@ def property_value(kind: Kind, key: Name, value: Expr, at: Expr | None, scope: S
     """A property's SI value (kelvin for temperatures) and its test condition, if written `at`."""
     spec = kind.prop(key.text)
     if spec is None:
-        hint = nearest(key.text, kind.prop_names())
-        raise DesignError(f"a {kind.name} has no property `{key.text}`" + (f"; did you mean `{hint}`?" if hint else ""),
-                          key.location, (f"{kind.name} properties: {', '.join(kind.prop_names())}",))
+        raise DesignError(f"a {kind.name} has no property `{key.text}`", key.location,
+                          did_you_mean(key.text, kind.prop_names())
+                          + (f"{kind.name} properties: {', '.join(kind.prop_names())}",))
     number = _checked(evaluate(value, scope), spec.dim, spec.temperature, f"`{key.text}`", value)
     if spec.at is None:
         if at is not None:

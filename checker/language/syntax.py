@@ -7,12 +7,11 @@ Only statements are walked here, so a long expression never recurses in Python.
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass
 
 from lark import Token, Tree
 
-from checker.errors import CircuitSyntaxError, DesignError, Location
+from checker.errors import CONTROL_CHARACTER, CircuitSyntaxError, DesignError, Location
 from checker.kinds import KINDS
 from checker.language.source import Source
 
@@ -120,9 +119,6 @@ RESERVED = frozenset(KINDS) | {"circuit", "ground", "let", "use", "block", "case
                                "from", "to", "absent", "ambient"}
 
 
-_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")  # all but tab
-
-
 def declared(name: Name, what: str) -> str:
     """A name being declared, checked against the reserved words."""
     if name.text in RESERVED:
@@ -153,7 +149,7 @@ class _Builder:
     def string(self, token: Token) -> str:
         """A title's text; control characters (terminal escapes, bidirectional overrides) are refused,
         since titles are printed in reports. (A `use` path with one names no file and fails as such.)"""
-        found = _CONTROL.search(str(token))
+        found = CONTROL_CHARACTER.search(str(token))
         if found is not None:
             where = self.source.at_position(token.line, token.column + found.start())
             raise CircuitSyntaxError(f"a string holds the control character U+{ord(found.group()):04X}", where)

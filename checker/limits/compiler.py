@@ -18,7 +18,9 @@ from checker.errors import LimitError, did_you_mean
 from checker.limits import margins
 from checker.limits.syntax import Binary, Call, Compare, InRange, Locator, Logic, Not, Num, Ref, Unary
 from checker.limits.vocabulary import FUNCTIONS, MEASURES, PRIMARY, PROPERTIES, property_type
-from checker.units import DIMENSIONLESS, KELVIN, Dim, dim_div, dim_mul, dim_name, dim_pow, parse_unit
+from checker.units import (
+    AMPERE, DIMENSIONLESS, KELVIN, VOLT, WATT, Dim, dim_div, dim_mul, dim_name, dim_pow, parse_unit,
+)
 
 
 class Unresolved(LimitError):
@@ -109,7 +111,7 @@ def compile_condition(tree, scope: Scope) -> Callable[[object], margins.Verdict]
     """The closure of a whole check or where: values of one case -> Verdict. LimitError if it is not a condition."""
     typed = _compile(tree, scope)
     if not typed.condition:
-        raise scope.error("a check must be a condition, such as `voltage(out) <= 3.3 V`", _pos(tree))
+        raise scope.error("a check must be a condition, such as `voltage(out) <= 3.3 V`", tree.pos)
     return typed.fn
 
 
@@ -117,21 +119,17 @@ def _compile(node, scope: Scope) -> Typed:
     return _RULES[type(node)](node, scope)
 
 
-def _pos(node) -> int:
-    return node.pos
-
-
 def _number(node, scope: Scope, role: str) -> Typed:
     typed = _compile(node, scope)
     if typed.condition:
-        raise scope.error(f"{role} needs a number, not a condition", _pos(node))
+        raise scope.error(f"{role} needs a number, not a condition", node.pos)
     return typed
 
 
 def _condition(node, scope: Scope, role: str) -> Typed:
     typed = _compile(node, scope)
     if not typed.condition:
-        raise scope.error(f"{role} joins conditions, and this is a number", _pos(node))
+        raise scope.error(f"{role} joins conditions, and this is a number", node.pos)
     return typed
 
 
@@ -180,8 +178,8 @@ def _binary(node: Binary, scope: Scope) -> Typed:
 def _sum_type(node: Binary, left: Typed, right: Typed, scope: Scope) -> tuple[Dim, bool]:
     """Dimension of `left ± right`; temperatures in degC follow the affine rules of checker.units."""
     if left.dim != right.dim:
-        verb = "add" if node.op == "+" else "subtract"
-        raise scope.error(f"cannot {verb} {_describe(right)} and {_describe(left)}", node.pos)
+        joined = "add {} to {}" if node.op == "+" else "subtract {} from {}"
+        raise scope.error("cannot " + joined.format(_describe(right), _describe(left)), node.pos)
     if left.absolute and right.absolute:
         if node.op == "+":
             raise scope.error("two temperatures in degC cannot be added; add a difference in K", node.pos)
@@ -221,12 +219,12 @@ def _arith(node: Binary, left: Callable, right: Callable, scope: Scope) -> Calla
 def _power(node: Binary, base: Typed, exponent: Typed, scope: Scope) -> Typed:
     """`base ^ exponent`: the exponent is a plain number known when the file loads."""
     if exponent.const is None or exponent.dim != DIMENSIONLESS:
-        raise scope.error("an exponent must be a plain number such as `2` or `-1`", _pos(node.right))
+        raise scope.error("an exponent must be a plain number such as `2` or `-1`", node.right.pos)
     if base.absolute:
         raise scope.error("a temperature in degC cannot be raised to a power", node.pos)
     power = exponent.const
     if base.dim != DIMENSIONLESS and power != int(power):
-        raise scope.error(f"{dim_name(base.dim)} can only be raised to a whole power", _pos(node.right))
+        raise scope.error(f"{dim_name(base.dim)} can only be raised to a whole power", node.right.pos)
     dim = dim_pow(base.dim, int(power)) if base.dim != DIMENSIONLESS else DIMENSIONLESS
     return Typed(False, _arith(node, base.fn, exponent.fn, scope), dim, const=_fold("^", base, exponent))
 
@@ -319,7 +317,7 @@ def _extreme(node: Call, args: list[Typed], scope: Scope) -> Typed:
     first = args[0]
     for arg, tree in zip(args[1:], node.args[1:]):
         if (arg.dim, arg.absolute) != (first.dim, first.absolute):
-            raise scope.error(f"`{node.name}` mixes {_describe(first)} and {_describe(arg)}", _pos(tree))
+            raise scope.error(f"`{node.name}` mixes {_describe(first)} and {_describe(arg)}", tree.pos)
     pick, fns = (min if node.name == "min" else max), [arg.fn for arg in args]
     consts = [arg.const for arg in args]
     const = pick(consts) if None not in consts else None
@@ -384,19 +382,19 @@ def _voltage(ref: Ref, scope: Scope) -> Typed:
                 return values.nets[net]
             except KeyError:
                 raise Absent(net) from None
-        return Typed(False, read_net, _VOLT)
+        return Typed(False, read_net, VOLT)
     if scope.find_part(ref) is None:
         raise scope.unresolved(ref, "net or part", scope.nets | scope.parts.keys())
     name, _, _ = _measured_part(ref, scope, "voltage")
-    return Typed(False, lambda values: _result(values, name).voltage, _VOLT)
+    return Typed(False, lambda values: _result(values, name).voltage, VOLT)
 
 
 def _current(ref: Ref, scope: Scope) -> Typed:
     """current(PART): through a two-terminal part, from -> to; current(PART.PIN): into that pin."""
     name, _, pin = _measured_part(ref, scope, "current", pins=True)
     if pin is None:
-        return Typed(False, lambda values: _result(values, name).current, _AMP)
-    return Typed(False, lambda values: _result(values, name).pins[pin], _AMP)
+        return Typed(False, lambda values: _result(values, name).current, AMPERE)
+    return Typed(False, lambda values: _result(values, name).pins[pin], AMPERE)
 
 
 def _power_of(ref: Ref, scope: Scope) -> Typed:
@@ -404,7 +402,7 @@ def _power_of(ref: Ref, scope: Scope) -> Typed:
     if found is None or found[2] != len(ref.names):
         raise scope.unresolved(ref, "part", scope.parts)
     name = found[0]
-    return Typed(False, lambda values: _result(values, name).power, _WATT)
+    return Typed(False, lambda values: _result(values, name).power, WATT)
 
 
 def _junction(ref: Ref, scope: Scope) -> Typed:
@@ -416,7 +414,6 @@ def _junction(ref: Ref, scope: Scope) -> Typed:
     return Typed(False, lambda values: values.ambient + read_power(values) * theta(values), KELVIN, True)
 
 
-_VOLT, _AMP, _WATT = parse_unit("V")[1], parse_unit("A")[1], parse_unit("W")[1]
 _MEASURES: Mapping[str, Callable] = {"voltage": _voltage, "current": _current, "power": _power_of,
                                      "junction_temp": _junction}
 
@@ -448,7 +445,7 @@ def _in_range(node: InRange, scope: Scope) -> Typed:
     value = parts[0]
     for typed, tree in zip(parts[1:], (node.low, node.high)):
         if (typed.dim, typed.absolute) != (value.dim, value.absolute):
-            raise scope.error(f"`in` checks {_describe(value)} against {_describe(typed)}", _pos(tree),
+            raise scope.error(f"`in` checks {_describe(value)} against {_describe(typed)}", tree.pos,
                               ("the value and both ends of a range need the same unit",))
     x, lo, hi, where = (*(typed.fn for typed in parts), scope.where)
 
@@ -457,7 +454,7 @@ def _in_range(node: InRange, scope: Scope) -> Typed:
         _finite(where, node.pos, values, *numbers)
         if numbers[1] > numbers[2]:  # a range no value can be in: its ends are swapped
             raise where.error(f"the range's low end is above its high end in case `{values.case}`; "
-                              "write `LOW .. HIGH`", _pos(node.low))
+                              "write `LOW .. HIGH`", node.low.pos)
         return margins.in_range(*numbers, value.dim, value.absolute)
     return Typed(True, run, value.dim, value.absolute)
 

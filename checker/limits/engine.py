@@ -20,7 +20,7 @@ from checker.design import Design, OperatingPoint, Part
 from checker.errors import LimitError, Location, did_you_mean
 from checker.findings import CircuitResult, Finding, Findings, Limit, Outcome, Waiver, WaiverNote
 from checker.limits.compiler import Absent, CaseValues, DeclaredValues, NoMatch, Scope, Unresolved, compile_condition
-from checker.limits.files import LimitFile
+from checker.limits.files import LimitFile, unique_ids
 from checker.limits.margins import Verdict
 from checker.limits.syntax import Locator, parse_expression
 from checker.limits.waivers import apply_waivers
@@ -122,17 +122,6 @@ def _compile_everywhere(limit: Limit, designs: Sequence[Design]) -> list[Compile
     return done
 
 
-def _all_limits(limit_files: Iterable[LimitFile]) -> list[Limit]:
-    """Every limit in order; an id used in two files is an error at the second."""
-    seen: dict[str, Limit] = {}
-    for limit in (limit for file in limit_files for limit in file.limits):
-        if limit.id in seen:
-            raise LimitError(f"limit id `{limit.id}` is used twice", limit.location,
-                             (f"first used in {seen[limit.id].source} at {seen[limit.id].location}",))
-        seen[limit.id] = limit
-    return list(seen.values())
-
-
 def _known(name: str, choices: Iterable[str], what: str, fallback: Location | None) -> None:
     """LimitError at `name` (a LocatedStr when loaded from a file) unless it is one of `choices`."""
     choices = tuple(choices)
@@ -154,7 +143,7 @@ def _check_waivers(waivers: Sequence[Waiver], limits: Sequence[Limit], designs: 
 
 def compile_limits(limit_files: Sequence[LimitFile], designs: Sequence[Design]) -> LimitSet:
     """Check every limit and waiver against the circuits, before any solving. LimitError on the first problem."""
-    limits = _all_limits(limit_files)
+    limits = unique_ids(limit for file in limit_files for limit in file.limits)
     cases = sorted({case for design in designs for case in design.cases})
     compiled: list[CompiledLimit] = []
     for limit in limits:

@@ -11,8 +11,9 @@ import importlib.util
 import re
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Iterable
 
-from checker.errors import LimitError, Location, did_you_mean
+from checker.errors import CONTROL_CHARACTER, LimitError, Location, did_you_mean
 from checker.findings import Limit, Waiver
 from checker.limits.vocabulary import KINDS
 from checker.yamlsource import (LocatedDict, LocatedStr, check_keys, expect_list, expect_mapping,
@@ -27,7 +28,6 @@ MAX_TEXT = {"about": 500, "reason": 2000}  # characters of the free text shown i
 _KEBAB = re.compile(r"[a-z0-9]+(-[a-z0-9]+)*")
 _WORD = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
 _PACK_NAME = re.compile(r"[a-z0-9][a-z0-9_-]*")
-_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")  # all but tab and newline
 
 
 @dataclass(frozen=True)
@@ -87,7 +87,7 @@ def _read(data: object, path: str, source: str) -> LimitFile:
     top = expect_mapping(data, "a limits file", start, LimitError)
     check_keys(top, ("limits", "waivers"), "a limits file", LimitError)
     limits = tuple(_limit(item, source) for item in _entries(top, "limits"))
-    _unique_ids(limits)
+    unique_ids(limits)
     waivers = tuple(_waiver(item) for item in _entries(top, "waivers"))
     return LimitFile(path, limits, waivers)
 
@@ -131,7 +131,7 @@ def _limit(entry: LocatedDict, source: str) -> Limit:
 def _plain(text: LocatedStr, key: str) -> LocatedStr:
     """Free text shown in reports and CI logs: control characters (terminal escapes, bidirectional
     overrides) would make it print or read differently from what the file says, so they are refused."""
-    found = _CONTROL.search(text)
+    found = CONTROL_CHARACTER.search(text)
     if found is not None:
         raise LimitError(f"`{key}` holds the control character U+{ord(found.group()):04X}; write plain text",
                          text.location_at(found.start()))
@@ -169,13 +169,17 @@ def _cases(entry: LocatedDict) -> tuple[str, ...] | None:
     return tuple(expect_text(item, "a case name", items.item_location(i), LimitError) for i, item in enumerate(items))
 
 
-def _unique_ids(limits: tuple[Limit, ...]) -> None:
+def unique_ids(limits: Iterable[Limit]) -> list[Limit]:
+    """The limits in order; an id used twice (in one file, or across the files and packs of a run)
+    is an error at the second, since findings, waivers and baselines name limits by id."""
     seen: dict[str, Limit] = {}
     for limit in limits:
         if limit.id in seen:
+            first = seen[limit.id]
             raise LimitError(f"limit id `{limit.id}` is used twice", limit.location,
-                             (f"first used at {seen[limit.id].location}",))
+                             (f"first used in {first.source} at {first.location}",))
         seen[limit.id] = limit
+    return list(seen.values())
 
 
 def _waiver(entry: LocatedDict) -> Waiver:

@@ -14,7 +14,7 @@ from pathlib import Path
 import lark
 
 from checker.errors import LimitError, Location
-from checker.units import DIMENSIONLESS, ZERO_CELSIUS, Dim, parse_unit
+from checker.units import Dim, Quantity, quantity
 
 MAX_LENGTH = 2000  # characters in one expression
 MAX_DEPTH = 60  # nesting of the syntax tree
@@ -22,12 +22,29 @@ MAX_DEPTH = 60  # nesting of the syntax tree
 
 @dataclass(frozen=True)
 class Num:
-    """A literal quantity in SI (kelvin for temperatures written in degC)."""
+    """A literal: the number as written (a leading `-` folded in), its unit text and its SI quantity.
 
-    value: float
-    dim: Dim
-    absolute: bool
+    The written form is kept so that `-20 degC` converts as -20 + 273.15 K, the very
+    float the circuit language makes of the same text (`checker.units.quantity`).
+    """
+
+    number: float
+    unit: str
+    quantity: Quantity
     pos: int
+
+    @property
+    def value(self) -> float:
+        """SI value; kelvin for temperatures written in degC."""
+        return self.quantity.value
+
+    @property
+    def dim(self) -> Dim:
+        return self.quantity.dim
+
+    @property
+    def absolute(self) -> bool:
+        return self.quantity.absolute
 
 
 @dataclass(frozen=True)
@@ -146,18 +163,20 @@ class _Build(lark.Transformer):
         token = children[0]
         text = str(token)
         number_text = _NUMBER.match(text).group(0)
-        number = float(number_text)
         unit = text[len(number_text):].strip()
-        scale, dim, absolute = 1.0, DIMENSIONLESS, False
-        if unit:
-            try:
-                scale, dim, absolute = parse_unit(unit)
-            except ValueError as exc:
-                raise self.where.error(str(exc), token.start_pos + text.index(unit)) from None
-        value = number + ZERO_CELSIUS if absolute else number * scale
-        if not (abs(value) < 1e300):
-            raise self.where.error("number too large", token.start_pos)
-        return Num(value, dim, absolute, token.start_pos)
+        return self.literal(float(number_text), unit, token.start_pos, token.start_pos + text.find(unit))
+
+    def literal(self, number: float, unit: str, pos: int, unit_pos: int) -> Num:
+        """A Num in SI; LimitError at the unit when it is not one, at the number when it is too large."""
+        try:
+            found = quantity(number, unit)
+        except ValueError as exc:
+            raise self.where.error(str(exc), unit_pos) from None
+        except OverflowError:
+            raise self.where.error(f"the unit `{unit}` is too large to represent", unit_pos) from None
+        if not abs(found.value) < 1e300:
+            raise self.where.error("number too large", pos)
+        return Num(number, unit, found, pos)
 
     def ref(self, children):
         names = tuple(str(t) for t in children if t.type == "NAME")
@@ -176,8 +195,7 @@ class _Build(lark.Transformer):
     def sign(self, children):
         op, operand = children
         if isinstance(operand, Num) and op == "-":  # fold: `-20 degC` is 253.15 K, not -(293.15 K)
-            value = 2 * ZERO_CELSIUS - operand.value if operand.absolute else -operand.value
-            return Num(value, operand.dim, operand.absolute, op.start_pos)
+            return self.literal(-operand.number, operand.unit, op.start_pos, op.start_pos)
         return Unary(str(op), operand, op.start_pos)
 
     def arith(self, children):

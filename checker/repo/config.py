@@ -11,7 +11,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from checker.errors import ConfigError, Location
+from checker.errors import ConfigError, Location, shown_path
 from checker.yamlsource import (
     LocatedDict, LocatedStr, check_keys, expect_list, expect_mapping, expect_text, load_yaml,
 )
@@ -19,8 +19,8 @@ from checker.yamlsource import (
 TOP_KEYS = ("circuits", "limits", "analysis", "report")
 ANALYSIS_KEYS = ("tolerances", "samples", "seed")
 TOLERANCE_MODES = ("nominal", "worst-case", "monte-carlo")
-REPORT_KEYS = ("markdown", "html", "json", "junit", "sarif")
-REPORT_FORMAT = {"markdown": "md", "html": "html", "json": "json", "junit": "junit", "sarif": "sarif"}
+CONFIG_NAMES = ("nodegate.yaml", "nodegate.yml")  # looked for in this order
+REPORT_FORMAT = {"markdown": "md", "html": "html", "json": "json", "junit": "junit", "sarif": "sarif"}  # key -> format
 INPUT_SUFFIXES = (".circuit", ".yaml", ".yml")
 MAX_CIRCUITS = 1000
 MAX_SAMPLES = 1_000_000
@@ -61,7 +61,7 @@ def find_config(directory: Path, config: Path | None) -> Path:
         hint = "give its folder, or name it with --config" if directory.suffix in (".yaml", ".yml") else \
             "`nodegate solve FILE` prints the operating point of one circuit file"
         raise ConfigError(f"`{directory}` is a file; `nodegate check` takes the repository's folder", notes=(hint,))
-    for name in ("nodegate.yaml", "nodegate.yml"):
+    for name in CONFIG_NAMES:
         if (directory / name).is_file():
             return directory / name
     raise ConfigError(f"no nodegate.yaml in `{directory}`; run `nodegate init {directory}` to start one")
@@ -70,9 +70,9 @@ def find_config(directory: Path, config: Path | None) -> Path:
 def load_config(path: Path) -> Config:
     """Read and validate a configuration file."""
     path = path.resolve()
-    root = path.parent
-    data = load_yaml(path)
-    start = Location(str(path), 1, 1)
+    root, shown = path.parent, shown_path(path)  # messages name the file as those of circuits and limits do
+    data = load_yaml(Path(shown))
+    start = Location(shown, 1, 1)
     if data is None:
         raise ConfigError("the configuration is empty; it needs at least `circuits:`", start)
     data = expect_mapping(data, "the configuration", start)
@@ -196,7 +196,7 @@ def _reports(value: object, root: Path, data: LocatedDict) -> dict[str, Path]:
     if value is None:
         return {}
     section = expect_mapping(value, "`report`", data.value_location("report"))
-    check_keys(section, REPORT_KEYS, "`report`")
+    check_keys(section, REPORT_FORMAT, "`report`")
     reports: dict[str, Path] = {}
     for key in section:
         text = expect_text(section[key], f"`report.{key}`", section.value_location(key))

@@ -7,7 +7,11 @@
   when nonlinear, Newton-Raphson runs per netlist on the shared devices;
 - netlists with the same parts' kinds and pins (a topology) share the numbering of
   nets, the kind groups, passed diagnoses and Jacobian sparsity patterns (see
-  `topology`); pass one `Cache` to many calls (as Monte Carlo does) to keep these.
+  `topology`); pass one `Cache` to many calls (as Monte Carlo does) to keep these;
+- a nonlinear netlist given a guess (an operating point of a netlist like it, such
+  as the nominal point of a tolerance perturbation) starts Newton-Raphson there, and
+  falls back to the usual first guess and continuation when that does not converge
+  (a warm start, see `newton` and `results.warm_start`).
 Every circuit is diagnosed from its graph before factorising (see `diagnosis`).
 """
 
@@ -22,7 +26,7 @@ from checker.solver.assembly import System, assemble, with_sources
 from checker.solver.diagnosis import diagnose
 from checker.solver.linear import Factor
 from checker.solver.newton import check_models, newton
-from checker.solver.results import operating_point
+from checker.solver.results import operating_point, warm_start
 from checker.solver.sharing import Group, signature
 from checker.solver.topology import Cache
 
@@ -32,18 +36,25 @@ def solve(netlist: Netlist, cache: Cache | None = None) -> OperatingPoint:
     return solve_cases([netlist], cache)[0]
 
 
-def solve_cases(netlists: Sequence[Netlist], cache: Cache | None = None) -> list[OperatingPoint]:
+def solve_cases(netlists: Sequence[Netlist], cache: Cache | None = None,
+                guesses: Sequence[OperatingPoint | None] | None = None) -> list[OperatingPoint]:
     """Operating points in the order given (results as if each netlist were solved alone).
 
     Every netlist is assembled and diagnosed, in order, before any is solved, so input
     errors come first. `cache` keeps topologies across calls; by default one per call.
+    `guesses`, one per netlist (None for none), are where Newton-Raphson starts on the
+    nonlinear ones; linear netlists are solved directly and ignore them.
     """
     cache = Cache() if cache is None else cache
+    guesses = [None] * len(netlists) if guesses is None else list(guesses)
+    if len(guesses) != len(netlists):
+        raise ValueError(f"{len(guesses)} guesses for {len(netlists)} netlists")
     groups, systems = _grouped(netlists, cache)
     points: list[OperatingPoint | None] = [None] * len(systems)
-    for position, system in enumerate(systems):
+    for position, (system, guess) in enumerate(zip(systems, guesses)):
         if system.nonlinear_devices:
-            x, iterations, strategy = newton(system)
+            start = None if guess is None else warm_start(system, guess)
+            x, iterations, strategy = newton(system, start)
             check_models(system, x)
             points[position] = operating_point(system, x, iterations, strategy)
     for group in groups:

@@ -1,4 +1,4 @@
-"""Net voltages and part results read off a solution vector."""
+"""Net voltages and part results read off a solution vector, and that vector back as a warm start."""
 
 from __future__ import annotations
 
@@ -10,6 +10,28 @@ import numpy as np
 from checker.design import OperatingPoint, Part, PartResult
 from checker.devices import Device
 from checker.solver.assembly import System
+from checker.solver.topology import Topology
+
+
+@dataclass(frozen=True)
+class Solution:
+    """The unknowns an operating point was read from (V for nets, A for branches), with what
+    says what each unknown means: the topology, and which part owns each branch unknown."""
+
+    topology: Topology
+    layout: tuple[bytes, ...]
+    x: np.ndarray
+
+    def fits(self, system: System) -> bool:
+        """Whether every unknown of `system` means the same as here (a tolerance perturbation does)."""
+        mine, theirs = self.topology, system.topology
+        same = mine is theirs or mine.matches(theirs.ground, theirs.kinds, theirs.pins)
+        return same and self.x.size == system.size and self.layout == branch_layout(system)
+
+
+def branch_layout(system: System) -> tuple[bytes, ...]:
+    """Each device's branch unknown per part (devices without branches give b"")."""
+    return tuple(np.asarray(getattr(device, "branch", ()), dtype=np.int64).tobytes() for device in system.devices)
 
 
 def operating_point(system: System, x: np.ndarray, iterations: int, strategy: str) -> OperatingPoint:
@@ -18,8 +40,25 @@ def operating_point(system: System, x: np.ndarray, iterations: int, strategy: st
     nets = dict(zip(system.nets, [0.0] + x[:system.n_nodes].tolist()))
     groups = [_group_results(device, x_ext) for device in system.devices]
     topology = system.topology
-    parts = PartResults(system.netlist.parts, groups, topology.group_of, topology.row_of)
+    parts = PartResults(system.netlist.parts, groups, topology.group_of, topology.row_of,
+                        Solution(topology, branch_layout(system), x))
     return OperatingPoint(system.netlist, nets, parts, iterations, strategy)
+
+
+def warm_start(system: System, point: OperatingPoint) -> np.ndarray:
+    """Where Newton-Raphson starts on `system` given `point`, an operating point of a netlist like it.
+
+    When the point was solved here with the same unknowns (same topology and branch
+    layout, as for a tolerance perturbation of the same case) it is every net voltage
+    and branch current; otherwise the net voltages found by name (0 V for nets the
+    point lacks) with branch currents 0 A.
+    """
+    if isinstance(point.parts, PartResults) and point.parts.solution.fits(system):
+        return point.parts.solution.x.copy()
+    nets = point.nets
+    x = np.zeros(system.size)
+    x[:system.n_nodes] = [nets.get(name, 0.0) for name in system.nets[1:]]
+    return x
 
 
 @dataclass(frozen=True)
@@ -49,8 +88,10 @@ class PartResults(Mapping):
     (or even the index of names) up front would cost more than the factorisation.
     """
 
-    def __init__(self, parts: tuple[Part, ...], groups: list[_Group], group_of: np.ndarray, row_of: np.ndarray):
+    def __init__(self, parts: tuple[Part, ...], groups: list[_Group], group_of: np.ndarray, row_of: np.ndarray,
+                 solution: Solution):
         self._parts = parts
+        self.solution = solution  # kept so that a later solve can start here (`warm_start`)
         self._groups = groups
         self._group, self._row = group_of, row_of  # each part's device and its row there, in netlist order
         self._position: dict[str, int] | None = None

@@ -97,4 +97,4 @@ def test_language_case_source_can_become_current():
 def test_language_case_errors(text, cls, position, words):
     caught = error(text, cls)
     assert (caught.location.line, caught.location.column) == position
-    assert words in caught.message
+    assert words in caught.message + " ".join(caught.notes)
