@@ -100,7 +100,7 @@ class Opamp(Device):
         the feedback, and a high-gain loop would flip between the rails from one iteration to the next."""
         fraction = 1.0
         for old, new in zip(self._beyond(x_old), self._beyond(x_new)):
-            crossing = (new > 0.0) & (old <= 0.0)
+            crossing = (new > 0.0) & (old < 0.0)  # starting exactly at a limit must still move
             if np.any(crossing):
                 fraction = min(fraction, float(np.min(old[crossing] / (old[crossing] - new[crossing]))))
         return x_old + max(fraction, 0.0) * (x_new - x_old)

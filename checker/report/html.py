@@ -1,7 +1,8 @@
 """The HTML report: one self-contained file (inline CSS and SVG, nothing fetched).
 
 jinja2 with autoescape on renders the shared view (`checker.report.view`), plus, per
-circuit, the operating point of every case and a margin chart per finding.
+circuit, the operating point of every case and a margin chart per finding, after a margin
+overview of every finding (`checker.report.overview`).
 """
 
 from __future__ import annotations
@@ -14,6 +15,7 @@ import jinja2
 from checker import __version__
 from checker.design import OperatingPoint, PartResult
 from checker.findings import CircuitResult, Findings
+from checker.report.overview import margin_overview
 from checker.report.svg import Chart, margin_chart
 from checker.report.view import NO_TEXT, STATUS_WORDS, ReportView, Row, build_view
 from checker.units import format_temperature, format_value
@@ -116,4 +118,4 @@ def render_html(findings: Findings) -> str:
     view: ReportView = build_view(findings)
     circuits = tuple((c, circuit_view(c, view.rows)) for c in findings.circuits)
     template = _environment().get_template("report.html.j2")
-    return template.render(view=view, circuits=circuits, version=__version__)
+    return template.render(view=view, circuits=circuits, overview=margin_overview(view.rows), version=__version__)

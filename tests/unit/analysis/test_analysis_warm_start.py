@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import numpy as np
 import pytest
 from analysis_circuits import TODAY
 
@@ -17,6 +18,8 @@ import checker.analysis.montecarlo
 import checker.analysis.sensitivity
 import checker.analysis.worstcase
 from checker.analysis import analyse
+from checker.analysis.sensitivity import Swing
+from checker.analysis.tolerances import Tolerance
 from checker.findings import Analysis, Findings
 from checker.limits import compile_limits
 from checker.pipeline import load_designs, load_limit_files
@@ -73,3 +76,12 @@ def test_example_board_same_findings_with_fewer_iterations(monkeypatch, analysis
     assert len(warm_spent) == len(cold_spent) > 100
     # About 10 iterations per case from the first guess, about 4 from the nominal point.
     assert sum(warm_spent) < 0.6 * sum(cold_spent)
+
+
+def test_margin_changes_within_solver_noise_count_as_none():
+    # Arithmetic: A moves the margin by 1e-13 (noise below its 1e-9 floor), B by 0.5, C by exactly 0.
+    tolerances = (Tolerance("A", 0.01), Tolerance("B", 0.05), Tolerance("C", 0.01))
+    swing = Swing(tolerances, np.array([1.0, 2.0, 3.0]), np.array([1.0 + 1e-13, 2.5, 3.0]), np.array([1e-9] * 3))
+    assert swing.change.tolist() == [0.0, 0.5, 0.0]
+    assert swing.lowering_signs().tolist() == [0.0, 1.0, 0.0]
+    assert swing.drivers() == (("B", 0.5),)
