@@ -127,7 +127,7 @@ class OperatingPoint:
     """The DC solution of one netlist.
 
     `strategy` is how it was reached: "linear" (one direct solve), "newton",
-    "gmin stepping" or "source stepping".
+    "gain stepping", "gmin stepping" or "source stepping".
     """
 
     netlist: Netlist

@@ -28,8 +28,9 @@ How to add a kind
    `first_guess(x)` may replace the stamp of the linear solve that starts Newton;
    `trouble(x)` names parts whose converged state lies outside their model; built-in
    setpoints follow `self.scale` during source stepping (volts and amps times the
-   scale, watts times its square). `x` always carries a trailing 0.0 so that index
-   -1 reads ground. docs/models.md describes every model.
+   scale, watts times its square); an amplifying kind returns its gains from
+   `open_loop_gains()` and caps them at `self.gain_cap` during gain stepping. `x`
+   always carries a trailing 0.0 so that index -1 reads ground. docs/models.md describes every model.
 5. Register the class in `DEVICES` below and add a test file under tests/unit/solver/.
 """
 

@@ -7,6 +7,7 @@ with Vmid = (Vhi + Vlo) / 2, the open-loop output measured from mid-rail, and
 smooth corners 5 mV wide (see `checker.devices.smooth`): exactly linear with the
 given gain between the limits, clipping smoothly at `swing` inside each rail.
 Defaults: gain 1e5 (100 dB, common practice for a general-purpose part), swing 0 V.
+During gain stepping (`checker.solver.newton`) the gain is capped at `gain_cap`.
 
 The output current j (pushed out of `out`) comes from the rails: the part sourcing
 current takes it from rail_hi, sinking it returns it to rail_lo. The split is
@@ -64,15 +65,22 @@ class Opamp(Device):
         ones = np.ones(j.size)
         return Triplets(np.concatenate([out, j]), np.concatenate([j, out]), np.concatenate([-ones, ones]))
 
+    def open_loop_gains(self) -> np.ndarray:
+        return self.gain
+
+    def _gain(self) -> np.ndarray:
+        """The open-loop gain (V/V) in use: the declared one, capped during gain stepping."""
+        return np.minimum(self.gain, self.gain_cap)
+
     def _output(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """The output voltage (V) and its slopes against v(plus), v(minus), v(rail_hi), v(rail_lo)."""
         plus, minus, _, hi, lo = (x[self.nodes[:, k]] for k in range(5))
-        swing = self.scale * self.swing
-        wanted = 0.5 * (hi + lo) + self.gain * (plus - minus)
+        swing, gain = self.scale * self.swing, self._gain()
+        wanted = 0.5 * (hi + lo) + gain * (plus - minus)
         below_hi, w_hi = smooth_min(hi - swing, wanted, SMOOTH_V)
         vout, w_lo = smooth_max(lo + swing, below_hi, SMOOTH_V)
         through = (1.0 - w_lo) * (1.0 - w_hi)  # d vout / d wanted
-        slopes = np.column_stack([through * self.gain, -through * self.gain,
+        slopes = np.column_stack([through * gain, -through * gain,
                                   (1.0 - w_lo) * w_hi + 0.5 * through, w_lo + 0.5 * through])
         return vout, slopes
 
@@ -80,16 +88,17 @@ class Opamp(Device):
         """The unclamped amplifier, Vout = Vmid + gain (V+ - V-): linear, so the first solve
         already sees the feedback. With the clamp, a guess whose rails still sit at 0 V would
         start with the output pinned, where its slope no longer shows the feedback."""
-        slopes = np.column_stack([self.gain, -self.gain, np.full(self.gain.size, 0.5), np.full(self.gain.size, 0.5)])
+        gain = self._gain()
+        slopes = np.column_stack([gain, -gain, np.full(gain.size, 0.5), np.full(gain.size, 0.5)])
         plus, minus, _, hi, lo = self.nodes.T
-        wanted = slopes[:, 2] * (x[hi] + x[lo]) + self.gain * (x[plus] - x[minus])
+        wanted = slopes[:, 2] * (x[hi] + x[lo]) + gain * (x[plus] - x[minus])
         return self._stamp(x, wanted, slopes)
 
     def _beyond(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """How far (V) the open-loop output lies above the upper limit and below the lower one;
         both are linear in x."""
         plus, minus, _, hi, lo = (x[self.nodes[:, k]] for k in range(5))
-        wanted = 0.5 * (hi + lo) + self.gain * (plus - minus)
+        wanted = 0.5 * (hi + lo) + self._gain() * (plus - minus)
         swing = self.scale * self.swing
         return wanted - (hi - swing), (lo + swing) - wanted
 

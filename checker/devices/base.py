@@ -13,6 +13,7 @@ and the vectors `x` handed to devices carry one extra trailing 0.0 so that
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from enum import IntEnum
 from typing import ClassVar, Sequence
@@ -123,6 +124,7 @@ class Device:
         self.ambient = ambient  # K
         self.n_branches = 0
         self.scale = 1.0  # source stepping: fraction of built-in setpoints (V, A; W as its square) applied
+        self.gain_cap = math.inf  # gain stepping: ceiling (V/V) on amplifiers' open-loop gains
 
     @classmethod
     def describe(cls, part: Part) -> str:
@@ -157,6 +159,11 @@ class Device:
         """Parts whose converged state lies outside what their model describes, each with a
         plain-words reason; the solver turns the first into NoSolutionError."""
         return []
+
+    def open_loop_gains(self) -> np.ndarray:
+        """The declared open-loop gains (V/V) that gain stepping raises `gain_cap` towards; none
+        for kinds that do not amplify."""
+        return np.empty(0)
 
     def limit(self, x_new: np.ndarray, x_old: np.ndarray) -> np.ndarray:
         """Nonlinear kinds may shorten a Newton step here (junction-voltage limiting).

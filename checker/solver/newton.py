@@ -10,10 +10,15 @@ each iteration only refills its values with one vectorised pass per device kind.
 
 Plain Newton (s = 1, gmin = 0) starts from a first guess: one linear solve with
 every device linearised at 0 V (constant-power loads standing aside). When it does
-not settle, two continuation methods follow (Najm, "Circuit Simulation", 2010,
-ch. 5 — chapter from memory): gmin stepping (solve with a large gmin, then lower
-it decade by decade to zero, each solution starting the next) and source stepping
-(raise s from 0 to 1 in adaptive steps). docs/models.md states the tolerances.
+not settle, continuation methods follow (Najm, "Circuit Simulation", 2010, ch. 5;
+Allgower & Georg, "Introduction to Numerical Continuation Methods", 1990/2003,
+ch. 1 and 2 on embedding a hard problem in a family solved from an easy member —
+chapters from memory), each solution of the family starting Newton on the next:
+gain stepping when the circuit has amplifiers (cap every open-loop gain low, where
+a positive-feedback loop is benign, and raise the cap geometrically to the declared
+gains), gmin stepping (solve with a large gmin, then lower it decade by decade to
+zero) and source stepping (raise s from 0 to 1 in adaptive steps). docs/models.md
+states the tolerances.
 
 A warm start (tolerance analysis) first runs plain Newton from a given guess, the
 solution of a nearby netlist, for at most WARM_ITERATIONS; only when that does not
@@ -25,6 +30,7 @@ Equations in Several Variables", 1970, sec. 12.6 — section from memory).
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -54,10 +60,12 @@ DIVERGED = 1e9  # V or A: an iterate beyond this has run away
 HALVINGS = 20  # damping: a step whose end cannot be evaluated is halved at most this often
 GMIN_START = -2.0  # log10 S: gmin stepping starts at 10 mS from every net to ground
 GMIN_END = -12.0  # log10 S: the last nonzero gmin before zero
-MIN_STEP = 1e-3  # smallest continuation step: decades of gmin, or fraction of full sources
+GAIN_START = -1.0  # log10 V/V: gain stepping starts with every open-loop gain capped at 0.1
+MIN_STEP = 1e-3  # smallest continuation step: decades of gmin or gain, or fraction of full sources
 
 STRATEGIES = {
     "newton": "plain Newton iteration from a first guess",
+    "gain stepping": "raising the amplifiers' gain step by step",
     "gmin stepping": "raising a small conductance to ground on every net and lowering it step by step",
     "source stepping": "ramping all sources up from zero",
 }
@@ -75,15 +83,16 @@ class Equations:
         self.magnitude = abs(system.matrix)
         self.pattern: Pattern | None = None  # fixed by the first linearisation: device layouts do not depend on x
 
-    def linearise(self, x: np.ndarray, gmin: float = 0.0, scale: float = 1.0,
-                  first: bool = False) -> tuple[np.ndarray, sp.csc_matrix, np.ndarray]:
-        """Residual F(x), Jacobian J(x) and each row's scale for the residual test."""
+    def linearise(self, x: np.ndarray, gmin: float = 0.0, scale: float = 1.0, first: bool = False,
+                  gain_cap: float = math.inf) -> tuple[np.ndarray, sp.csc_matrix, np.ndarray]:
+        """Residual F(x), Jacobian J(x) and each row's scale for the residual test, with sources
+        scaled by `scale` and amplifiers' gains capped at `gain_cap` (V/V)."""
         x_ext = np.append(x, 0.0)
         residual = self.system.matrix @ x - scale * self.system.rhs
         row_scale = self.magnitude @ np.abs(x) + scale * np.abs(self.system.rhs)
         values, layout = [self.constant.data], [(self.constant.row, self.constant.col)]
         for device in self.devices:
-            device.scale = scale
+            device.scale, device.gain_cap = scale, gain_cap
             s = device.first_guess(x_ext) if first else device.evaluate(x_ext)
             keep_rows, jacobian = s.rows >= 0, s.jacobian
             keep = (jacobian.rows >= 0) & (jacobian.cols >= 0)
@@ -123,15 +132,19 @@ class Equations:
         return bool(np.all(np.abs(step) <= step_tol + RELTOL * np.abs(x))
                     and np.all(np.abs(residual) <= residual_tol + RELTOL * row_scale))
 
-    def first_guess(self) -> np.ndarray:
+    def first_guess(self, gain_cap: float = math.inf) -> np.ndarray:
         """Newton's starting point: the linear solve with devices linearised at 0 V, taken as a
         limited step from 0 V like any Newton step (zeros if that solve is singular)."""
         zero = np.zeros(self.size)
-        residual, jacobian, _ = self.linearise(zero, first=True)
+        residual, jacobian, _ = self.linearise(zero, first=True, gain_cap=gain_cap)
         try:
             return self.limit(Factor(jacobian, self.netlist).solve(-residual), zero)
         except NoSolutionError:
             return zero
+
+    def largest_gain(self) -> float:
+        """The largest declared open-loop gain (V/V) of any amplifier; 0 without amplifiers."""
+        return float(max((np.max(d.open_loop_gains(), initial=0.0) for d in self.devices), default=0.0))
 
 
 @dataclass
@@ -143,15 +156,16 @@ class Run:
     converged: bool
 
 
-def iterate(equations: Equations, x: np.ndarray, gmin: float, scale: float, budget: int) -> Run:
-    """Damped Newton-Raphson from `x` at fixed gmin and source scale, for at most `budget` iterations.
+def iterate(equations: Equations, x: np.ndarray, gmin: float, scale: float, budget: int,
+            gain_cap: float = math.inf) -> Run:
+    """Damped Newton-Raphson from `x` at fixed gmin, source scale and gain cap, for at most `budget` iterations.
 
     Damping: junction limiting shortens steps (see the devices' `limit`), and a
     step whose end gives a non-finite residual is halved, at most HALVINGS times.
     """
     previous, halvings = None, 0
     for iteration in range(1, budget + 1):
-        residual, jacobian, row_scale = equations.linearise(x, gmin, scale)
+        residual, jacobian, row_scale = equations.linearise(x, gmin, scale, gain_cap=gain_cap)
         if not np.all(np.isfinite(residual)):
             if previous is None or halvings >= HALVINGS:
                 return Run(x, iteration, False)
@@ -190,13 +204,41 @@ def newton(system: System, guess: np.ndarray | None = None) -> tuple[np.ndarray,
     spent += plain.iterations
     if plain.converged:
         return plain.x, spent, "newton"
-    for name, method in (("gmin stepping", lambda: gmin_stepping(equations, start)),
-                         ("source stepping", lambda: source_stepping(equations))):
+    for name, method in _continuations(equations, start):
         run = method()
         spent += run.iterations
         if run.converged:
             return run.x, spent, name
     raise no_convergence(equations, plain.x)
+
+
+def _continuations(equations: Equations, start: np.ndarray) -> list:
+    """(name, method) of the continuation methods that apply, in the order they are tried: gain
+    stepping first when there are amplifiers, as a positive-feedback loop defeats the others."""
+    methods = [("gmin stepping", lambda: gmin_stepping(equations, start)),
+               ("source stepping", lambda: source_stepping(equations))]
+    if equations.largest_gain() > 0.0:
+        methods.insert(0, ("gain stepping", lambda: gain_stepping(equations)))
+    return methods
+
+
+def gain_stepping(equations: Equations) -> Run:
+    """Cap every amplifier's open-loop gain at 0.1, where any loop through resistive feedback has a
+    loop gain below one and so a single benign solution, then raise the cap geometrically (adaptively)
+    until it reaches the largest declared gain, and finally solve with the declared gains.
+
+    Along the way a comparator's output leaves its linear range for the rail its inputs favour
+    and stays there, so Newton never has to cross the whole output range in one step."""
+    start_cap = 10.0 ** GAIN_START
+    run = iterate(equations, equations.first_guess(start_cap), 0.0, 1.0, STEP_ITERATIONS, start_cap)
+    if not run.converged:
+        return run
+    decades = math.log10(equations.largest_gain()) - GAIN_START
+
+    def settings(position: float) -> tuple[float, float, float, bool]:
+        last = position >= decades
+        return 0.0, 1.0, math.inf if last else 10.0 ** (GAIN_START + position), last
+    return _walk(equations, run, 1.0, settings)
 
 
 def gmin_stepping(equations: Equations, start: np.ndarray) -> Run:
@@ -206,28 +248,28 @@ def gmin_stepping(equations: Equations, start: np.ndarray) -> Run:
     if not run.converged:
         return run
 
-    def settings(decades: float) -> tuple[float, float, bool]:
+    def settings(decades: float) -> tuple[float, float, float, bool]:
         exponent = GMIN_START - decades
-        return (0.0, 1.0, True) if exponent < GMIN_END else (10.0 ** exponent, 1.0, False)
+        return (0.0, 1.0, math.inf, True) if exponent < GMIN_END else (10.0 ** exponent, 1.0, math.inf, False)
     return _walk(equations, run, 1.0, settings)
 
 
 def source_stepping(equations: Equations) -> Run:
     """Raise every source and device setpoint from zero, where 0 V everywhere is the solution, to full."""
     return _walk(equations, Run(np.zeros(equations.size), 0, True), 0.1,
-                 lambda scale: (0.0, min(scale, 1.0), scale >= 1.0))
+                 lambda scale: (0.0, min(scale, 1.0), math.inf, scale >= 1.0))
 
 
 def _walk(equations: Equations, run: Run, step: float, settings) -> Run:
     """Move a continuation parameter from 0 in steps; `settings(position)` gives (gmin, source
-    scale, whether this is the last position). A converged step is kept and the next one made
+    scale, gain cap, whether this is the last position). A converged step is kept and the next one made
     half as long again; a failed one is retried a quarter as long, down to MIN_STEP."""
     x, spent, position = run.x, run.iterations, 0.0
     for _ in range(MAX_STEPS):
         if spent >= CONTINUATION_BUDGET:
             break
-        gmin, scale, last = settings(position + step)
-        attempt = iterate(equations, x, gmin, scale, STEP_ITERATIONS)
+        gmin, scale, gain_cap, last = settings(position + step)
+        attempt = iterate(equations, x, gmin, scale, STEP_ITERATIONS, gain_cap)
         spent += attempt.iterations
         if attempt.converged:
             if last:
@@ -247,7 +289,7 @@ def no_convergence(equations: Equations, x: np.ndarray) -> NoSolutionError:
     _, residual_tol = equations.tolerances()
     badness = np.abs(residual) / (residual_tol + RELTOL * row_scale)
     badness[~np.isfinite(badness)] = np.inf
-    tried = "; ".join(STRATEGIES.values())
+    tried = "; ".join([STRATEGIES["newton"]] + [STRATEGIES[name] for name, _ in _continuations(equations, x)])
     message = (f"circuit `{netlist.circuit}` has no DC operating point that could be found in case "
                f"`{netlist.case}`: none of these settled: {tried}")
     return NoSolutionError(message, netlist.case_location, (_worst(equations.system, int(np.argmax(badness))),))

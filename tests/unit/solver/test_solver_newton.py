@@ -172,7 +172,9 @@ def test_no_convergence_is_a_no_solution_error_naming_the_case_strategies_and_ne
         solve(net(two("I1", "source", "gnd", "x", 2.0, "A"), two("N1", "saturating", "x", "gnd")))
     message = caught.value.message
     assert "no DC operating point" in message and "in case `default`" in message
-    assert all(words in message for words in STRATEGIES.values())
+    # Gain stepping is tried, and named, only in circuits with amplifiers.
+    assert all(words in message for name, words in STRATEGIES.items() if name != "gain stepping")
+    assert STRATEGIES["gain stepping"] not in message
     assert caught.value.notes == ("the largest current imbalance is at net `x`, which connects I1, N1",)
     assert caught.value.location.line == 9
 

@@ -195,7 +195,9 @@ def test_cannot_converge_names_the_case_and_the_strategies():
                   two("L1", "load", "x", "gnd", 1.0, "W"), case="brownout"))
     message = caught.value.message
     assert "no DC operating point" in message and "case `brownout`" in message
-    assert all(words in message for words in STRATEGIES.values())
+    # Gain stepping is tried, and named, only in circuits with amplifiers.
+    assert all(words in message for name, words in STRATEGIES.items() if name != "gain stepping")
+    assert STRATEGIES["gain stepping"] not in message
     assert caught.value.notes[0].startswith("the largest current imbalance is at net `")
     assert caught.value.location.line == 30
 
