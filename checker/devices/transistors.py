@@ -27,7 +27,24 @@ def polarity(parts: Sequence[Part], positive: str, negative: str) -> np.ndarray:
     return np.array([1.0 if positive in part.flags else -1.0 for part in parts])
 
 
-class Bjt(Device):
+class _Transistor(Device):
+    """A three-pin device whose pin currents and their slopes come from one law `_law(x)`."""
+
+    nonlinear = True
+
+    def _law(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Current into each pin, shape (parts, 3), and its slopes against the pins' voltages."""
+        raise NotImplementedError
+
+    def evaluate(self, x: np.ndarray) -> NonlinearStamp:
+        currents, slopes = self._law(x)
+        return stamp(self.nodes, currents, self.nodes, slopes)
+
+    def pin_currents(self, x: np.ndarray) -> np.ndarray:
+        return self._law(x)[0]
+
+
+class Bjt(_Transistor):
     """`bjt` (pins c, b, e): the Ebers-Moll transport model (Ebers & Moll, "Large-signal
     behavior of junction transistors", Proc. IRE, 1954).
 
@@ -41,7 +58,6 @@ class Bjt(Device):
 
     kind = "bjt"
     pins = ("c", "b", "e")
-    nonlinear = True
     BETA_F = 100.0
     BETA_R = 1.0
     ISAT = 1e-14  # A
@@ -90,12 +106,6 @@ class Bjt(Device):
         currents = self.p[:, None] * np.column_stack([ic, ib, -(ic + ib)])
         return currents, slopes
 
-    def evaluate(self, x: np.ndarray) -> NonlinearStamp:
-        currents, slopes = self._law(x)
-        return stamp(self.nodes, currents, self.nodes, slopes)
-
-    def pin_currents(self, x: np.ndarray) -> np.ndarray:
-        return self._law(x)[0]
 
     def limit(self, x_new: np.ndarray, x_old: np.ndarray) -> np.ndarray:
         fraction = 1.0
@@ -113,7 +123,7 @@ class Bjt(Device):
                                 f"base or emitter current") for k in np.flatnonzero(hot)]
 
 
-class Mosfet(Device):
+class Mosfet(_Transistor):
     """`mosfet` (pins d, g, s): the Shichman-Hodges square law (Shichman & Hodges, "Modeling
     and simulation of insulated-gate field-effect transistor switching circuits", IEEE
     J. Solid-State Circuits, 1968).
@@ -129,7 +139,6 @@ class Mosfet(Device):
 
     kind = "mosfet"
     pins = ("d", "g", "s")
-    nonlinear = True
     VTH = 1.0  # V, magnitude; pmos thresholds are negative
     K = 0.1  # A/V^2
 
@@ -176,9 +185,3 @@ class Mosfet(Device):
         currents = self.p[:, None] * np.column_stack([i, np.zeros_like(i), -i])
         return currents, slopes
 
-    def evaluate(self, x: np.ndarray) -> NonlinearStamp:
-        currents, slopes = self._law(x)
-        return stamp(self.nodes, currents, self.nodes, slopes)
-
-    def pin_currents(self, x: np.ndarray) -> np.ndarray:
-        return self._law(x)[0]
