@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import datetime
+import os
 import sys
 from pathlib import Path
 from typing import Sequence
@@ -16,6 +17,7 @@ from checker import __version__
 from checker.errors import NodegateError, render
 
 EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_BUG = 0, 1, 2, 3
+EXIT_BROKEN_PIPE = 141  # 128 + SIGPIPE, as shells report a pipe closed early
 REPORT_FORMATS = ("md", "html", "json", "junit", "sarif", "annotations")
 BUG_REPORT = "please report it with the command and the input files to the nodegate maintainers"
 
@@ -122,6 +124,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("nodegate: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # the reader went away (`nodegate solve ... | head`): stop quietly
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_BROKEN_PIPE
     except Exception as bug:  # noqa: BLE001 - the last line of defence: never a traceback
         print(f"nodegate: internal error ({type(bug).__name__}: {bug}); this is a bug, {BUG_REPORT}.",
               file=sys.stderr)

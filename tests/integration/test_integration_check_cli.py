@@ -217,3 +217,22 @@ def test_version_and_help_exit_0(capsys):
     assert main(["--version"]) == 0
     assert "nodegate" in capsys.readouterr().out
     assert main(["check", "--help"]) == 0
+
+
+def test_output_piped_into_a_reader_that_stops_early_is_not_a_bug(tmp_path):
+    # `nodegate solve big.circuit --format json | head`: the reader closes the pipe early
+    import subprocess
+    import sys
+
+    lines = ["circuit big", "ground gnd", "source V from n0 to gnd : 1 V"]
+    lines += [f"resistor R{i} from n{i} to n{i + 1} : 1 kohm" for i in range(3000)]
+    lines += ["resistor RT from n3000 to gnd : 1 kohm"]
+    path = write(tmp_path, "big.circuit", "\n".join(lines) + "\n")
+    repo_root = Path(__file__).resolve().parents[2]
+    process = subprocess.Popen([sys.executable, "-m", "checker", "solve", str(path), "--format", "json"],
+                               stdout=subprocess.PIPE, stderr=subprocess.PIPE, cwd=repo_root)
+    process.stdout.read(100)
+    process.stdout.close()
+    err = process.stderr.read().decode()
+    assert process.wait(timeout=120) in (0, 141)
+    assert "internal error" not in err and "Traceback" not in err
