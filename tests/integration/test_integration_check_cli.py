@@ -42,6 +42,15 @@ def repo(tmp_path: Path, limits: str, circuit: str = CIRCUIT, extra_config: str 
     return tmp_path
 
 
+# A limit no divider tap of this circuit can meet: the check must fail.
+FAILING_LIMIT = """\
+limits:
+  - id: tap-too-tight
+    about: impossible on purpose
+    check: voltage(mid) <= 1 V
+"""
+
+
 def mid_voltage(vin: float) -> float:
     """Divider with a 10 µA load on the tap: Thevenin equivalent of the divider, then the load's drop."""
     r1, r2, i_load = 30e3, 20e3, 10e-6
@@ -86,12 +95,7 @@ def test_end_to_end_margin_matches_hand_computation(tmp_path):
 
 
 def test_failing_error_limit_exits_1_and_still_writes_reports(tmp_path, capsys):
-    root = repo(tmp_path, """\
-        limits:
-          - id: tap-too-tight
-            about: impossible on purpose
-            check: voltage(mid) <= 1 V
-        """)
+    root = repo(tmp_path, FAILING_LIMIT)
     code = main(["check", str(root), "--out", str(root / "out")])
     out = capsys.readouterr().out
     assert code == 1
@@ -168,12 +172,7 @@ def test_hostile_check_expression_exits_2_located_in_limit_file(tmp_path, capsys
 
 
 def test_formats_junit_sarif_and_annotations(tmp_path, capsys):
-    root = repo(tmp_path, """\
-        limits:
-          - id: tap-too-tight
-            about: impossible on purpose
-            check: voltage(mid) <= 1 V
-        """)
+    root = repo(tmp_path, FAILING_LIMIT)
     code = main(["check", str(root), "--out", str(root / "out"), "--format", "junit,sarif,annotations"])
     assert code == 1
     assert (root / "out" / "report.junit.xml").is_file()
