@@ -49,6 +49,14 @@ class Outcome:
     limit holds; `relative` is the margin over the limit's scale (|bound|, or the
     value's magnitude when the bound is zero). `unit` is the display symbol of the
     three numbers; `absolute` marks temperatures to show in °C.
+
+    Under worst-case analysis `method` says how the worst was found ("vertices",
+    "corner-search" or "interior", docs/analysis.md), `proved` whether that method
+    proves it is the lowest margin over the whole tolerance box, and `point` is the
+    full point: every toleranced value of the case (`R1`, `U1.vout`) with its
+    deviation as a fraction, in netlist order. `error` is set when the circuit has no
+    operating point at that corner or sample: the solver's message; the outcome then
+    fails with value and bound NaN and margin −inf.
     """
 
     case: str
@@ -60,6 +68,10 @@ class Outcome:
     absolute: bool = False
     holds: bool = True
     corner: str = ""  # a tolerance corner or sample, when tolerances are analysed
+    method: str = ""  # worst-case only: "vertices" | "corner-search" | "interior"
+    proved: bool = False  # worst-case only: the method proves this is the lowest margin
+    point: tuple[tuple[str, float], ...] = ()  # every toleranced value and its deviation
+    error: str = ""  # no operating point here: why (the outcome fails)
 
 
 @dataclass(frozen=True)

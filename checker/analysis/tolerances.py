@@ -26,6 +26,12 @@ class Tolerance:
 
     part: str
     fraction: float
+    prop: str = "value"  # the field it moves: "value" (the primary value) or "vout" (a regulator)
+
+    @property
+    def name(self) -> str:
+        """How reports and `solve --at` name the value: `R1` for a primary value, `U1.vout` otherwise."""
+        return self.part if self.prop == "value" else f"{self.part}.{self.prop}"
 
 
 def _moved_value(part: Part) -> str | None:
@@ -46,13 +52,14 @@ def toleranced(netlist: Netlist) -> tuple[Tolerance, ...]:
             raise DesignError(f"part {part.name} has tol = {tol * 100:g} %: a tolerance must be "
                               "from 0 % to below 100 %", part.location)
         if tol > 0.0:
-            found.append(Tolerance(part.name, float(tol)))
+            found.append(Tolerance(part.name, float(tol), _moved_value(part)))
     return tuple(found)
 
 
 def primary_values(netlist: Netlist, fraction: float) -> tuple[Tolerance, ...]:
     """Every part with a value a tolerance could move, each given the band ±`fraction` (for `explain`)."""
-    return tuple(Tolerance(part.name, fraction) for part in netlist.parts if _moved_value(part) is not None)
+    return tuple(Tolerance(part.name, fraction, _moved_value(part)) for part in netlist.parts
+                 if _moved_value(part) is not None)
 
 
 def _moved(part: Part, deviation: float) -> Part:
