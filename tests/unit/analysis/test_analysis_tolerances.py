@@ -21,7 +21,8 @@ def test_regulator_tolerance_moves_vout():
     regulator = Part("U1", "regulator", (("in", "a"), ("out", "b"), ("gnd", "gnd")),
                      props={"vout": 3.3, "tol": 0.02})
     netlist = Netlist("c", "default", 298.15, "gnd", (regulator,))
-    assert toleranced(netlist) == (Tolerance("U1", 0.02),)
+    assert toleranced(netlist) == (Tolerance("U1", 0.02, "vout"),)
+    assert toleranced(netlist)[0].name == "U1.vout"
     moved = perturbed(netlist, {"U1": -0.02})
     assert moved.part("U1").props["vout"] == pytest.approx(3.3 * 0.98, rel=1e-15)
     assert moved.part("U1").value is None
