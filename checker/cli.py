@@ -72,6 +72,10 @@ def build_parser() -> argparse.ArgumentParser:
     solve = commands.add_parser("solve", help="print the operating point of a circuit file")
     solve.add_argument("file", type=Path, help="a .circuit file")
     solve.add_argument("--case", help="only this case")
+    solve.add_argument("--at", metavar="POINT",
+                       help="solve with values moved from their declared values, e.g. \"R1=+5%%,U1.vout=-2.5%%\": "
+                            "a part's name for its primary value, PART.vout for a regulator's output voltage; "
+                            "reports print the POINT of each worst case")
     solve.add_argument("--format", choices=("table", "json"), default="table")
 
     init = commands.add_parser("init", help="write a starter configuration, example circuit, limits and CI workflow")

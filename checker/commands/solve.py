@@ -1,16 +1,24 @@
-"""`nodegate solve FILE [--case NAME] [--format table|json]`: print operating points."""
+"""`nodegate solve FILE [--case NAME] [--at POINT] [--format table|json]`: print operating points."""
 
 from __future__ import annotations
 
 import argparse
+import sys
 from pathlib import Path
+from typing import Sequence
 
+from checker.analysis.points import outside_band, parse_point, point_label, resolve_point
 from checker.analysis.run import located_at
+from checker.analysis.tolerances import Tolerance, percent, perturbed
+from checker.design import Design, Netlist, OperatingPoint
 from checker.errors import DesignError, did_you_mean
 from checker.language import load_design
 from checker.repo.config import CONFIG_NAMES
 from checker.report import render_solve_json, render_solve_table
 from checker.solver import solve_cases
+
+Moved = tuple[tuple[Tolerance, float], ...]
+Point = tuple[tuple[str, float], ...]
 
 
 def repository_root(circuit: Path) -> Path:
@@ -26,18 +34,61 @@ def repository_root(circuit: Path) -> Path:
     return folder
 
 
+def _band_text(value: Tolerance, deviation: float) -> str:
+    if value.fraction == 0.0:
+        return f"{value.name} {percent(deviation)} moves a value that declares no tolerance"
+    return f"{value.name} {percent(deviation)} is outside its tolerance of ±{value.fraction * 100:.3g} %"
+
+
+def band_notes(moved: Sequence[tuple[str, Moved]]) -> list[str]:
+    """A note per deviation beyond a declared tolerance, so an explored point is never mistaken
+    for a reported one; it names its cases when not every solved case has it (a case may override `tol`)."""
+    cases_of: dict[str, list[str]] = {}
+    for case, pairs in moved:
+        for value, deviation in pairs:
+            if outside_band(value, deviation):
+                cases_of.setdefault(_band_text(value, deviation), []).append(case)
+    return [text if len(cases) == len(moved) else f"{text} in case{'s' if len(cases) > 1 else ''} {', '.join(cases)}"
+            for text, cases in cases_of.items()]
+
+
+def _selected(design: Design, case: str | None) -> tuple[Netlist, ...]:
+    if case is None:
+        return design.netlists
+    netlists = tuple(n for n in design.netlists if n.case == case)
+    if not netlists:
+        raise DesignError(f"`{design.path}` has no case `{case}`",
+                          notes=did_you_mean(case, design.cases) + (f"its cases: {', '.join(design.cases)}",))
+    return netlists
+
+
+def at_point(netlists: Sequence[Netlist], point: dict[str, float]) -> tuple[tuple[Netlist, ...], Point, list[str]]:
+    """The netlists moved to `point`, the point by the names reports use, and notes on deviations
+    beyond a declared tolerance. Names resolve alike in every case (a case cannot change a kind)."""
+    moved = [(n.case, resolve_point(point, n)) for n in netlists]
+    netlists = tuple(perturbed(n, {value.part: d for value, d in pairs}) for n, (_, pairs) in zip(netlists, moved))
+    return netlists, tuple((value.name, d) for value, d in moved[0][1]), band_notes(moved)
+
+
+def show(circuit: str, points: Sequence[OperatingPoint], fmt: str, at: Point | None, notes: Sequence[str]) -> None:
+    """Print the operating points; with json the notes go to stderr so that stdout stays valid JSON."""
+    if fmt == "json":
+        for note in notes:
+            print(f"note: {note}", file=sys.stderr)
+        print(render_solve_json(circuit, points, at))
+        return
+    head = [f"at {point_label(at)}", *(f"note: {note}" for note in notes)] if at is not None else []
+    print(render_solve_table(points, head))
+
+
 def run(args: argparse.Namespace) -> int:
+    point = parse_point(args.at) if args.at is not None else None
     design = load_design(args.file, root=repository_root(args.file))
-    netlists = design.netlists
-    if args.case is not None:
-        netlists = tuple(n for n in netlists if n.case == args.case)
-        if not netlists:
-            raise DesignError(f"`{design.path}` has no case `{args.case}`",
-                              notes=did_you_mean(args.case, design.cases) + (f"its cases: {', '.join(design.cases)}",))
+    netlists = _selected(design, args.case)
+    at, notes = None, []
+    if point is not None:
+        netlists, at, notes = at_point(netlists, point)
     with located_at(design):
         points = solve_cases(netlists)
-    if args.format == "json":
-        print(render_solve_json(design.name, points))
-    else:
-        print(render_solve_table(points))
+    show(design.name, points, args.format, at, notes)
     return 0

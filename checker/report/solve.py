@@ -15,6 +15,7 @@ from checker.design import OperatingPoint, PartResult
 from checker.units import ZERO_CELSIUS, format_temperature, format_value
 
 DASH = "—"
+Point = Sequence[tuple[str, float]]  # (value name, deviation as a fraction), as `solve --at` moved them
 
 
 def finite_or_none(value: float) -> float | None:
@@ -44,9 +45,13 @@ def case_json(point: OperatingPoint) -> dict[str, Any]:
     }
 
 
-def render_solve_json(circuit_name: str, points: Sequence[OperatingPoint]) -> str:
-    """`{"circuit": NAME, "cases": [...]}` as OUTPUTS.md shows it, indented; no final newline (for print)."""
-    document = {"circuit": circuit_name, "cases": [case_json(p) for p in points]}
+def render_solve_json(circuit_name: str, points: Sequence[OperatingPoint], at: Point | None = None) -> str:
+    """`{"circuit": NAME, "cases": [...]}` as OUTPUTS.md shows it, indented; no final newline (for print).
+
+    With `at` (`solve --at`), each case also has `"at": {NAME: deviation}` (fractions), right after `case`.
+    """
+    cases = [case_json(p) if at is None else {"case": p.case, "at": dict(at), **case_json(p)} for p in points]
+    document = {"circuit": circuit_name, "cases": cases}
     return json.dumps(document, indent=2, ensure_ascii=False, allow_nan=False)
 
 
@@ -81,6 +86,11 @@ def _case_block(point: OperatingPoint) -> list[str]:
     return [head, ""] + align(nets, {1}) + [""] + align(_part_rows(point), {1, 2, 3})
 
 
-def render_solve_table(points: Sequence[OperatingPoint]) -> str:
-    """One block per case: its heading, a table of net voltages, a table of parts; no final newline."""
-    return "\n\n".join("\n".join(_case_block(p)) for p in points)
+def render_solve_table(points: Sequence[OperatingPoint], head: Sequence[str] = ()) -> str:
+    """One block per case: its heading, a table of net voltages, a table of parts; no final newline.
+
+    `head` lines come first (`solve --at`: the point and its notes), so a copied table
+    never passes for the nominal one.
+    """
+    blocks = "\n\n".join("\n".join(_case_block(p)) for p in points)
+    return "\n".join(head) + "\n\n" + blocks if head else blocks
