@@ -30,11 +30,22 @@ def _holds(finding: Finding) -> bool:
     return finding.status == "pass"
 
 
+def _unit(finding: Finding) -> str | None:
+    """The unit of a finding's margins, from an outcome with an operating point (one without may
+    carry none); None when no outcome has one."""
+    return next((outcome.unit for outcome in finding.outcomes if not outcome.error), None)
+
+
 def _base_margin(head: Finding, base: Finding) -> float | None:
-    """The base's worst margin, when it is in the same unit as the head's (a rewritten check may not be)."""
-    if not base.outcomes or not head.outcomes or base.worst.unit != head.worst.unit:
+    """The base's worst margin, when it is in the same unit as the head's (a rewritten check may not be).
+
+    It is −inf when the base had no operating point there (`Outcome.error`); reports show that in
+    words and give no margin change, as none can be computed against it.
+    """
+    if not base.outcomes or not head.outcomes:
         return None
-    return base.worst.margin
+    units = {_unit(head), _unit(base)} - {None}
+    return base.worst.margin if len(units) <= 1 else None
 
 
 def _change(head: Finding, base: Finding | None) -> str:

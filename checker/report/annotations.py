@@ -17,8 +17,8 @@ import os
 from pathlib import Path
 
 from checker.errors import Location
-from checker.findings import Finding, Findings, Outcome, WaiverNote
-from checker.units import format_temperature, format_value
+from checker.findings import Finding, Findings, WaiverNote
+from checker.report.view import make_row
 
 _DATA_ESCAPES = (("%", "%25"), ("\r", "%0D"), ("\n", "%0A"))
 _PROPERTY_ESCAPES = _DATA_ESCAPES + ((":", "%3A"), (",", "%2C"))
@@ -58,23 +58,14 @@ def _command(level: str, location: Location | None, title: str, message: str, ro
     return f"::{level} {','.join(props)}::{escape_data(message)}"
 
 
-def _side(outcome: Outcome, value: float) -> str:
-    return format_temperature(value) if outcome.absolute else format_value(value, outcome.unit)
-
-
-def _margin_unit(outcome: Outcome) -> str:
-    """Margins of absolute temperatures are differences, shown in kelvin."""
-    return "K" if outcome.absolute else outcome.unit
-
-
 def _finding_message(finding: Finding, base_ref: str | None) -> str:
-    worst = finding.worst
+    """What failed and where, in the shared view's words: the numbers, or that there is no operating point."""
+    worst, row = finding.worst, make_row(finding)
     where = f"{finding.circuit} / {finding.item}" if finding.item else finding.circuit
+    measured = (f"{row.value}: {row.error}" if row.error else
+                f"{row.value} against {row.bound}, margin {row.margin} ({row.relative})")
     text = (f"{finding.limit.about} ({where}, case {worst.case}"
-            + (f", corner {worst.corner}" if worst.corner else "")
-            + f"): {_side(worst, worst.value)} against {_side(worst, worst.bound)}, "
-            + f"margin {format_value(worst.margin, _margin_unit(worst))} "
-            + f"({format_value(worst.relative * 100, '%')})")
+            + (f", corner {worst.corner}" if worst.corner else "") + f"): {measured}")
     if finding.change == "new" and base_ref:
         text += f"; new since {base_ref}"
     return text

@@ -17,7 +17,7 @@ from checker.design import OperatingPoint, PartResult
 from checker.findings import CircuitResult, Findings
 from checker.report.overview import margin_overview
 from checker.report.svg import Chart, margin_chart
-from checker.report.view import NO_TEXT, STATUS_WORDS, ReportView, Row, build_view
+from checker.report.view import NO_TEXT, STATUS_WORDS, ReportView, Row, build_view, plural
 from checker.units import format_temperature, format_value
 
 
@@ -109,7 +109,7 @@ def _environment() -> jinja2.Environment:
                              autoescape=True, undefined=jinja2.StrictUndefined,
                              trim_blocks=True, lstrip_blocks=True)
     env.globals.update(status_word=lambda status: STATUS_WORDS.get(status, status),
-                       strategies=_strategies)
+                       strategies=_strategies, plural=plural)
     return env
 
 

@@ -7,6 +7,12 @@ margin change over their tolerance band, and `fail_fraction` for Monte Carlo),
 `fixed` (with --base), `waiver_notes`, and `circuits` with the operating point of every case
 in the shape of `solve --format json`. Temperatures are kelvin, flagged `absolute`;
 NaN and infinities become null so that any JSON reader accepts the file.
+
+Each outcome also carries `method` ("vertices", "corner-search", "interior"; null outside
+worst-case) with `proved` (true or false beside a method, else null), `point` (every
+toleranced value and its deviation as a fraction, {"R1": 0.05, "U1.vout": -0.05}, in full;
+null at nominal) and `error` (the solver's message when the circuit has no operating point
+there, else null; value, bound, margin and relative are then null and `holds` false).
 """
 
 from __future__ import annotations
@@ -46,7 +52,9 @@ def outcome_json(outcome: Outcome) -> dict[str, Any]:
     return {"case": outcome.case, "corner": outcome.corner or None,
             "value": finite_or_none(outcome.value), "bound": finite_or_none(outcome.bound),
             "margin": finite_or_none(outcome.margin), "relative": finite_or_none(outcome.relative),
-            "unit": outcome.unit, "absolute": outcome.absolute, "holds": outcome.holds}
+            "unit": outcome.unit, "absolute": outcome.absolute, "holds": outcome.holds,
+            "method": outcome.method or None, "proved": outcome.proved if outcome.method else None,
+            "point": dict(outcome.point) or None, "error": outcome.error or None}
 
 
 def finding_json(finding: Finding) -> dict[str, Any]:

@@ -2,7 +2,8 @@
 
 One <testsuite> per circuit, one <testcase> per finding (classname = circuit,
 name = limit id, with the part in brackets for `each` limits). Mapping of statuses:
-- fail   -> <failure> (worst case, value vs bound, margin);
+- fail   -> <failure> (worst case, value vs bound, margin, or that there is no operating
+            point; and the command that reproduces a tolerance point);
 - warn   -> passes, with the warning in <system-out>, since warnings do not fail a
             check unless --strict;
 - waived -> <skipped> with the waiver's reason and end date;
@@ -18,7 +19,7 @@ import re
 import xml.etree.ElementTree as ET
 
 from checker.findings import Finding, Findings, WaiverNote
-from checker.report.view import Row, make_row, waiver_text
+from checker.report.view import Row, circuit_paths, make_row, waiver_text
 
 WAIVER_SUITE = "waivers"
 # Characters XML 1.0 does not allow at all, not even as references (XML 1.0, 2.2 "Characters").
@@ -26,21 +27,34 @@ _NOT_XML = re.compile("[^\t\n\r\x20-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
 
 
 def worst_sentence(row: Row) -> str:
-    """`case cold: value 13.1 mA vs bound 15.0 mA, margin -1.90 mA (-12.7 %)`."""
+    """`case cold (R1 +5 %): value 13.1 mA vs bound 15.0 mA, margin -1.90 mA (-12.7 %)`,
+    or `case cold (R1 +5 %): no operating point: MESSAGE`."""
+    if row.error:
+        return f"case {row.case}: {row.value}: {row.error}"
     return (f"case {row.case}: value {row.value} vs bound {row.bound}, "
             f"margin {row.margin} ({row.relative})")
+
+
+def _failure_text(row: Row) -> str:
+    """The failure's body: what the limit is, how it failed, and how to see it again."""
+    lines = [row.finding.limit.about, f"check: {row.check}", worst_sentence(row)]
+    if row.method:
+        lines.append(f"found by: {row.method}")
+    if row.reproduce:
+        lines.append(f"reproduce: {row.reproduce}")
+    return "\n".join(lines)
 
 
 def testcase_name(finding: Finding) -> str:
     return finding.limit.id + (f" [{finding.item}]" if finding.item else "")
 
 
-def _testcase(suite: ET.Element, finding: Finding) -> None:
-    row = make_row(finding)
+def _testcase(suite: ET.Element, finding: Finding, path: str) -> None:
+    row = make_row(finding, path)
     case = ET.SubElement(suite, "testcase", classname=finding.circuit, name=testcase_name(finding))
     if finding.status == "fail":
         failure = ET.SubElement(case, "failure", message=worst_sentence(row), type="limit")
-        failure.text = f"{finding.limit.about}\ncheck: {finding.limit.check}\n{worst_sentence(row)}"
+        failure.text = _failure_text(row)
     elif finding.status == "warn":
         ET.SubElement(case, "system-out").text = f"warning: {finding.limit.about}; {worst_sentence(row)}"
     elif finding.status == "waived":
@@ -52,12 +66,12 @@ def _suite(parent: ET.Element, name: str, cases: int, failures: int, skipped: in
                          errors="0", skipped=str(skipped))
 
 
-def _circuit_suite(parent: ET.Element, circuit: str, findings: list[Finding]) -> None:
+def _circuit_suite(parent: ET.Element, circuit: str, findings: list[Finding], path: str) -> None:
     failures = sum(1 for f in findings if f.status == "fail")
     skipped = sum(1 for f in findings if f.status == "waived")
     suite = _suite(parent, circuit, len(findings), failures, skipped)
     for finding in findings:
-        _testcase(suite, finding)
+        _testcase(suite, finding, path)
 
 
 def _waiver_suite(parent: ET.Element, notes: tuple[WaiverNote, ...]) -> None:
@@ -86,9 +100,10 @@ def render_junit(findings: Findings) -> str:
     by_circuit: dict[str, list[Finding]] = {c.name: [] for c in findings.circuits}
     for finding in findings.findings:
         by_circuit.setdefault(finding.circuit, []).append(finding)
+    paths = circuit_paths(findings)
     root = ET.Element("testsuites", name="nodegate")
     for circuit, items in by_circuit.items():
-        _circuit_suite(root, circuit, items)
+        _circuit_suite(root, circuit, items, paths.get(circuit, ""))
     if findings.waiver_notes:
         _waiver_suite(root, findings.waiver_notes)
     suites = root.findall("testsuite")

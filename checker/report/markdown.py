@@ -2,7 +2,10 @@
 
 Layout (our own): the verdict, failing limits worst first, warnings, waived limits,
 limits fixed against the base revision, then every limit in a collapsed section, and
-the caution line. Every name and text from the input goes through `escape`, so no
+the caution line. Under the failing and warning tables, each limit whose worst case has
+a tolerance point or no operating point gets a few lines: the solver's message, the
+command that reproduces the point, and the full point in a collapsed block. Every name
+and text from the input goes through `escape` (commands through `code_span`), so no
 limit id, part name or waiver reason can break a table or inject markup.
 
 With `max_bytes`, whole rows (and then whole sections) are dropped from the end and a
@@ -15,7 +18,7 @@ import re
 from dataclasses import dataclass, field
 
 from checker.findings import Findings
-from checker.report.view import NO_TEXT, STATUS_WORDS, NoteRow, ReportView, Row, build_view
+from checker.report.view import NO_TEXT, STATUS_WORDS, NoteRow, ReportView, Row, build_view, plural
 
 # The size of one step's job summary the CI host accepts (1 MiB, rounded down to stay clear).
 JOB_SUMMARY_LIMIT = 1_000_000
@@ -48,6 +51,14 @@ def _escape_marker(match: re.Match) -> str:
     return lead + "\\" + marker
 
 
+def code_span(text: str) -> str:
+    """`text` shown literally and copyable: one line, fenced by more backticks than it holds."""
+    text = _CONTROL.sub("", _BREAKS.sub(" ", text))
+    fence = "`" * (max((len(run) for run in re.findall("`+", text)), default=0) + 1)
+    pad = " " if text.startswith("`") or text.endswith("`") else ""
+    return f"{fence}{pad}{text}{pad}{fence}"
+
+
 def _cell(text: str) -> str:
     return escape(text) if text else NO_TEXT
 
@@ -72,17 +83,21 @@ class _Block:
         return self.head + self.rows + self.tail
 
 
-_MEASURE = ["circuit", "limit", "part", "worst case", "value", "bound", "margin", "relative"]
+_WHERE = ["circuit", "limit", "part", "worst case"]
+_NUMBERS = ["value", "bound", "margin", "relative"]
 
 
-def _tolerance_titles(view: ReportView) -> list[str]:
-    """Extra columns of a tolerance analysis: the driving parts, and Monte Carlo's failure fraction."""
-    return (["driven by"] if view.with_drivers else []) + (["fails in"] if view.with_fractions else [])
+def _measure_titles(view: ReportView) -> list[str]:
+    """The worst case (with worst-case's method beside it), its numbers, then the driving parts
+    and Monte Carlo's failure fraction."""
+    return (_WHERE + (["method"] if view.with_method else []) + _NUMBERS
+            + (["driven by"] if view.with_drivers else []) + (["fails in"] if view.with_fractions else []))
 
 
 def _measure_cells(row: Row, view: ReportView) -> list[str]:
-    cells = [row.circuit, row.limit, row.item, row.case, row.value, row.bound, row.margin, row.relative]
-    return cells + ([row.drivers] if view.with_drivers else []) + ([row.fails_in] if view.with_fractions else [])
+    return ([row.circuit, row.limit, row.item, row.case] + ([row.method] if view.with_method else [])
+            + [row.value, row.bound, row.margin, row.relative]
+            + ([row.drivers] if view.with_drivers else []) + ([row.fails_in] if view.with_fractions else []))
 
 
 def _base_cells(row: Row, with_base: bool) -> list[str]:
@@ -91,9 +106,30 @@ def _base_cells(row: Row, with_base: bool) -> list[str]:
 
 def _measure_block(title: str, rows: tuple[Row, ...], view: ReportView) -> _Block:
     with_base = view.base_ref is not None
-    titles = _MEASURE + _tolerance_titles(view) + (["change", "margin vs base"] if with_base else [])
+    titles = _measure_titles(view) + (["change", "margin vs base"] if with_base else [])
     body = [_table_row(_measure_cells(r, view) + _base_cells(r, with_base)) for r in rows]
     return _Block([f"### {title}", ""] + _table_head(titles), body, [""])
+
+
+def _point_entry(row: Row) -> str:
+    """What one failing limit's worst case needs beyond its table row, as one unit of text."""
+    where = " · ".join(escape(name) for name in (row.circuit, row.limit, row.item) if name)
+    lines = [f"**{where}** in {escape(row.case)}" + (f": {escape(row.method)}" if row.method else "")]
+    if row.error:
+        lines.append(f"No operating point: {escape(row.error)}")
+    if row.reproduce:
+        lines.append(f"Reproduce: {code_span(row.reproduce)}")
+    text = "\\\n".join(lines) + "\n"
+    if row.point:
+        text += (f"\n<details><summary>Full point: {plural(len(row.point), 'value')}</summary>\n\n"
+                 f"{escape(', '.join(row.point))}\n\n</details>\n")
+    return text
+
+
+def _points_block(rows: tuple[Row, ...]) -> list[_Block]:
+    """The entries of the rows that have a tolerance point or no operating point (none: no block)."""
+    entries = [_point_entry(r) for r in rows if r.point or r.error]
+    return [_Block([], entries)] if entries else []
 
 
 def _note_line(note: NoteRow) -> str:
@@ -107,14 +143,15 @@ def _blocks(view: ReportView) -> list[_Block]:
     """Every section after the verdict, in reading order."""
     blocks: list[_Block] = []
     if view.failures:
-        blocks.append(_measure_block("Failing limits", view.failures, view))
+        blocks += [_measure_block("Failing limits", view.failures, view)] + _points_block(view.failures)
     if view.warnings:
-        blocks.append(_measure_block("Warnings", view.warnings, view))
+        blocks += [_measure_block("Warnings", view.warnings, view)] + _points_block(view.warnings)
     if view.expired or view.unused:
         head = [] if view.warnings else ["### Warnings", ""]
         blocks.append(_Block(head, [_note_line(n) for n in view.expired + view.unused], [""]))
     if view.waived:
-        body = [_table_row([r.circuit, r.limit, r.item, r.case, r.margin, r.waiver]) for r in view.waived]
+        body = [_table_row([r.circuit, r.limit, r.item, r.case, r.value if r.error else r.margin, r.waiver])
+                for r in view.waived]
         head = ["### Waived", ""] + _table_head(["circuit", "limit", "part", "worst case", "margin", "waiver"])
         blocks.append(_Block(head, body, [""]))
     if view.fixed:
@@ -137,7 +174,7 @@ def _verdict_lines(view: ReportView) -> list[str]:
 def _every_limit_block(view: ReportView) -> _Block:
     rows = view.rows
     head = [f"<details><summary>Every limit ({len(rows)})</summary>", ""]
-    head += _table_head(["status"] + _MEASURE + _tolerance_titles(view) + ["about"])
+    head += _table_head(["status"] + _measure_titles(view) + ["about"])
     body = [_table_row([STATUS_WORDS.get(r.status, r.status)] + _measure_cells(r, view) + [r.about]) for r in rows]
     return _Block(head, body, ["", "</details>", ""])
 

@@ -5,8 +5,10 @@ One horizontal bar per finding (limit x circuit x item), worst first, from the z
 (the margin over the limit's scale, as in the tables), drawn within ±CLIP and marked
 with an arrowhead where it goes further. Beside each bar: the relative margin as a
 number (the true one, also when clipped) and, for bars that do not simply hold, FAIL,
-WARN or WAIVED, so the chart reads without colour. Long reports show the MAX_BARS
-worst and say how many more the circuit sections hold.
+WARN or WAIVED, so the chart reads without colour. A finding whose worst case has no
+operating point (relative margin −inf) comes first, as a failing bar cut at the left edge,
+with "no operating point" written in the empty right half of its row. Long reports show
+the MAX_BARS worst and say how many more the circuit sections hold.
 """
 
 from __future__ import annotations
@@ -14,7 +16,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from checker.report.view import Row, case_label, format_relative
+from checker.report.view import NO_POINT, Row, case_label, format_relative
 
 MAX_BARS = 40
 CLIP = 1.0  # relative margin drawn at most ±100 %
@@ -50,6 +52,7 @@ class OverviewBar:
     x: float  # left end of the bar
     width: float  # 0 when the relative margin is undefined
     clipped: int  # -1 or +1 when the bar is cut at ∓CLIP, else 0
+    note: str = ""  # "no operating point" instead of a margin
 
 
 @dataclass(frozen=True)
@@ -114,10 +117,12 @@ def _bar(row: Row, index: int, with_circuit: bool) -> OverviewBar:
     name = f"{row.circuit}: {name}" if with_circuit else name
     worst = f"worst: {case_label(row.finding.worst)}"
     value = format_relative(relative)
+    said = f"{NO_POINT}: {row.error}" if row.error else f"relative margin {value}"
     return OverviewBar(status=row.status, label=shorten(name, LABEL_CHARS), case=shorten(worst, CASE_CHARS),
-                       title=f"{name}, {worst}, relative margin {value}", value=value,
+                       title=f"{name}, {worst}, {said}", value=value,
                        word=WORDS.get(row.status, row.status.upper()), top=TOP + index * ROW_STEP,
-                       y=TOP + index * ROW_STEP + BAR_TOP, x=min(zero, end), width=abs(end - zero), clipped=clipped)
+                       y=TOP + index * ROW_STEP + BAR_TOP, x=min(zero, end), width=abs(end - zero), clipped=clipped,
+                       note=NO_POINT if row.error else "")
 
 
 def margin_overview(rows: tuple[Row, ...], max_bars: int = MAX_BARS) -> Overview | None:

@@ -3,7 +3,8 @@
 One run; `tool.driver.rules` are the limits. One result per finding that fails
 (level "error") or warns (level "warning"), located at the limit's `id:` line in its
 limits file and, for `each` limits, also at the part's line in the circuit
-(a related location). Artifact URIs are relative to the repository root, with
+(a related location). A failing tolerance point's message ends with the command that
+reproduces it. Artifact URIs are relative to the repository root, with
 uriBaseId "SRCROOT" (left for the consumer to resolve, so reports do not depend on
 where the check ran); files outside the root get absolute file URIs.
 With --base, every result carries a baselineState (SARIF 2.1.0 §3.27.24): "new" or
@@ -22,7 +23,7 @@ from checker import __version__
 from checker.errors import Location
 from checker.findings import Finding, Findings, Limit
 from checker.report.junit import worst_sentence
-from checker.report.view import make_row
+from checker.report.view import circuit_paths, make_row
 
 SARIF_VERSION = "2.1.0"
 SARIF_SCHEMA_URI = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/sarif-schema-2.1.0.json"
@@ -57,22 +58,25 @@ def rule_json(limit: Limit) -> dict[str, Any]:
             "defaultConfiguration": {"level": LEVELS.get(limit.severity, "error")}}
 
 
-def message_text(finding: Finding) -> str:
-    """What failed, where and by how much, in one paragraph."""
+def message_text(finding: Finding, path: str = "") -> str:
+    """What failed, where and by how much, in one paragraph, with the command that reproduces a
+    failing tolerance point (`path`: the circuit's file)."""
     where = f"{finding.circuit}" + (f", part {finding.item}" if finding.item else "")
     text = f"{finding.limit.id} ({where}): {finding.limit.about}"
-    row = make_row(finding) if finding.outcomes else None
+    row = make_row(finding, path) if finding.outcomes else None
     if finding.change == "fixed":
         return text + (f"; fixed by this change (margin on the base: {row.base_margin})." if row else
                        "; fixed by this change.")
-    return text + (f"; worst {worst_sentence(row)}." if row else ".")
+    if row is None:
+        return text + "."
+    return text + f"; worst {worst_sentence(row)}." + (f" Reproduce: {row.reproduce}" if row.reproduce else "")
 
 
-def result_json(finding: Finding, rule_index: int, root: Path, base: bool) -> dict[str, Any]:
+def result_json(finding: Finding, rule_index: int, root: Path, base: bool, path: str = "") -> dict[str, Any]:
     result: dict[str, Any] = {
         "ruleId": finding.limit.id, "ruleIndex": rule_index,
         "level": LEVELS.get(finding.limit.severity, "error"),
-        "message": {"text": message_text(finding)},
+        "message": {"text": message_text(finding, path)},
         "partialFingerprints": {"nodegateFinding/v1": "|".join(finding.key)},
     }
     if finding.limit.location is not None:
@@ -95,7 +99,8 @@ def render_sarif(findings: Findings, root: Path) -> str:
     for finding in findings.findings + findings.fixed:
         limits.setdefault(finding.limit.id, finding.limit)
     index = {limit_id: i for i, limit_id in enumerate(limits)}
-    results = [result_json(f, index[f.limit.id], root, base) for f in reported]
+    paths = circuit_paths(findings)
+    results = [result_json(f, index[f.limit.id], root, base, paths.get(f.circuit, "")) for f in reported]
     results += [result_json(f, index[f.limit.id], root, base) | {"baselineState": "absent"} for f in absent]
     driver = {"name": "nodegate", "version": __version__, "rules": [rule_json(limit) for limit in limits.values()]}
     run: dict[str, Any] = {"tool": {"driver": driver}, "results": results, "columnKind": "unicodeCodePoints"}

@@ -15,9 +15,11 @@ def _where(row: Row) -> str:
 
 
 def _finding_line(word: str, row: Row) -> str:
-    """`FAIL tail_light: led-current, case cold: 13.1 mA vs limit 15.0 mA, margin -1.90 mA (-12.7 %)`."""
-    line = (f"{word} {_where(row)}, case {row.case}: {row.value} vs limit {row.bound}, "
-            f"margin {row.margin} ({row.relative})")
+    """`FAIL tail_light: led-current, case cold (R1 +5 %): 13.1 mA vs limit 15.0 mA, margin -1.90 mA (-12.7 %)`,
+    or `..., case cold (R1 +5 %): no operating point: MESSAGE`."""
+    measured = (f"{row.value}: {row.error}" if row.error else
+                f"{row.value} vs limit {row.bound}, margin {row.margin} ({row.relative})")
+    line = f"{word} {_where(row)}, case {row.case}: {measured}"
     return line + (f" [{row.change}]" if row.change else "")
 
 

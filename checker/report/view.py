@@ -10,6 +10,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from checker.analysis.points import reproduce_command
+from checker.analysis.tolerances import percent
 from checker.findings import Analysis, Finding, Findings, Outcome, Waiver, WaiverNote
 from checker.units import format_temperature, format_value
 
@@ -18,6 +20,8 @@ CAUTION = ("nodegate supports, and does not replace, a qualified engineer's revi
 
 STATUS_WORDS = {"pass": "holds", "fail": "fails", "warn": "warning", "waived": "waived"}
 NO_TEXT = "—"
+NO_POINT = "no operating point"  # an outcome whose circuit has no solution: it fails, with no numbers
+METHOD_NAMES = {"vertices": "vertices", "corner-search": "corner search", "interior": "interior search"}
 
 
 def plural(count: int, word: str, many: str | None = None) -> str:
@@ -26,7 +30,10 @@ def plural(count: int, word: str, many: str | None = None) -> str:
 
 
 def format_number(value: float, unit: str, absolute: bool = False) -> str:
-    """A value or bound: temperatures in °C, dimensionless numbers plain, others with SI prefixes."""
+    """A value or bound: temperatures in °C, dimensionless numbers plain, others with SI prefixes;
+    a dash for NaN and infinities, which no reader should see as `nan` or `inf`."""
+    if not math.isfinite(value):
+        return NO_TEXT
     if absolute:
         return format_temperature(value)
     if not unit:
@@ -42,6 +49,11 @@ def format_margin(margin: float, unit: str, absolute: bool = False, signed: bool
     return text
 
 
+def format_base_margin(margin: float, unit: str, absolute: bool = False) -> str:
+    """The base revision's worst margin: −inf there means the base had no operating point (Outcome)."""
+    return NO_POINT if margin == -math.inf else format_margin(margin, unit, absolute)
+
+
 def format_relative(relative: float) -> str:
     """The margin over the limit's scale, as a percentage with one decimal."""
     return f"{relative * 100:.1f} %" if math.isfinite(relative) else NO_TEXT
@@ -55,21 +67,30 @@ def format_fraction(fraction: float | None) -> str:
 MAX_DRIVERS_SHOWN = 3
 
 
+def margin_unit(finding: Finding) -> tuple[str, bool]:
+    """Unit and temperature flag of the finding's margins, from an outcome with an operating point
+    (one without may carry no unit)."""
+    solved = next((o for o in finding.outcomes if not o.error), finding.worst)
+    return solved.unit, solved.absolute
+
+
 def drivers_text(finding: Finding) -> str:
     """`R_TOP 12.3 mV, VBAT 8.10 mV`: the parts whose tolerance band moves the worst margin most."""
     if not finding.drivers or not finding.outcomes:
         return ""
-    worst = finding.worst
-    shown = [f"{part} {format_margin(change, worst.unit, worst.absolute)}"
-             for part, change in finding.drivers[:MAX_DRIVERS_SHOWN]]
+    unit, absolute = margin_unit(finding)
+    shown = [f"{part} {format_margin(change, unit, absolute)}" for part, change in finding.drivers[:MAX_DRIVERS_SHOWN]]
     return ", ".join(shown)
 
 
 def analysis_sentence(analysis: Analysis) -> str:
     """How the margins were found, for the report header (RULES.md, "Tolerance analysis")."""
     if analysis.mode == "worst-case":
-        return ("Tolerance analysis: worst case. Each margin is the lowest found over the parts' "
-                "tolerance bands; the corner is named beside the case.")
+        return ("Tolerance analysis: worst case. Each margin is the lowest found over the tolerance box, where "
+                "every toleranced value may sit anywhere in its band. When a case has few enough toleranced "
+                "values, every vertex of the box is solved, which proves the lowest margin for a linear circuit; "
+                "otherwise a corner search and an interior search look for it, and a search is not a proof. "
+                "The corner is named beside the case.")
     if analysis.mode == "monte-carlo":
         return (f"Tolerance analysis: Monte Carlo, {plural(analysis.samples or 0, 'sample')}, seed {analysis.seed}. "
                 "Each margin is the lowest sample; fails in: the share of samples that fail.")
@@ -79,6 +100,35 @@ def analysis_sentence(analysis: Analysis) -> str:
 def case_label(outcome: Outcome) -> str:
     """The case, with the tolerance corner or sample when there is one."""
     return f"{outcome.case} ({outcome.corner})" if outcome.corner else outcome.case
+
+
+def method_text(outcome: Outcome) -> str:
+    """How the worst case was found, and whether that proves nothing lower exists in the tolerance box."""
+    if not outcome.method:
+        return ""
+    name = METHOD_NAMES.get(outcome.method, outcome.method)
+    if outcome.proved:
+        return f"{name}, proved"
+    if outcome.method == "vertices":  # only a nonlinear circuit leaves the vertices unproved
+        return f"{name}, not a proof for a nonlinear circuit"
+    return f"{name} — a search, not a proof"
+
+
+def point_texts(outcome: Outcome) -> tuple[str, ...]:
+    """Every toleranced value of the point and its deviation (`R1 +5 %`), in netlist order, none left out."""
+    return tuple(f"{name} {percent(deviation)}" for name, deviation in outcome.point)
+
+
+def reproduce_text(outcome: Outcome, path: str) -> str:
+    """The shell command that solves the circuit at a failing point, so anyone can look at it."""
+    if outcome.holds or not outcome.point or not path:
+        return ""
+    return reproduce_command(path, outcome.case, outcome.point)
+
+
+def circuit_paths(findings: Findings) -> dict[str, str]:
+    """Circuit name -> its file, for the reproduce commands."""
+    return {circuit.name: circuit.path for circuit in findings.circuits}
 
 
 @dataclass(frozen=True)
@@ -104,6 +154,10 @@ class Row:
     waiver: str
     drivers: str = ""
     fails_in: str = ""
+    method: str = ""  # worst-case: how the worst was found, and whether that is a proof
+    point: tuple[str, ...] = ()  # the full point of the worst outcome, `R1 +5 %` each
+    error: str = ""  # the solver's message when the worst outcome has no operating point
+    reproduce: str = ""  # the command that solves a failing worst outcome's point
 
 
 @dataclass(frozen=True)
@@ -150,6 +204,7 @@ class ReportView:
     analysis: str = ""
     with_drivers: bool = False  # worst-case and Monte Carlo name the parts that drive each margin
     with_fractions: bool = False  # Monte Carlo gives each limit's failure fraction
+    with_method: bool = False  # worst-case names how each worst case was found
 
 
 def waiver_text(waiver: Waiver | None) -> str:
@@ -157,18 +212,24 @@ def waiver_text(waiver: Waiver | None) -> str:
 
 
 def _base_columns(finding: Finding, worst: Outcome) -> tuple[str, str, str]:
-    """Change, base margin and margin change (now minus base), empty without --base."""
+    """Change, base margin and margin change (now minus base), empty without --base.
+
+    The change is left empty when either side has no operating point: there is no difference to give."""
     if finding.base_margin is None:
         return finding.change or "", "", ""
-    base = format_margin(finding.base_margin, worst.unit, worst.absolute)
-    delta = format_margin(worst.margin - finding.base_margin, worst.unit, worst.absolute, signed=True)
-    return finding.change or "", base, delta
+    unit, absolute = margin_unit(finding)
+    base = format_base_margin(finding.base_margin, unit, absolute)
+    delta = worst.margin - finding.base_margin
+    change = format_margin(delta, unit, absolute, signed=True) if math.isfinite(delta) else ""
+    return finding.change or "", base, change
 
 
 def _worst_columns(worst: Outcome | None) -> dict[str, str]:
     """Case, value, bound, margin and relative margin of the worst outcome (dashes if none)."""
     if worst is None:
         return dict.fromkeys(("case", "value", "bound", "margin", "relative"), NO_TEXT)
+    if worst.error:
+        return dict(case=case_label(worst), value=NO_POINT, bound=NO_TEXT, margin=NO_TEXT, relative=NO_TEXT)
     return dict(case=case_label(worst),
                 value=format_number(worst.value, worst.unit, worst.absolute),
                 bound=format_number(worst.bound, worst.unit, worst.absolute),
@@ -176,8 +237,17 @@ def _worst_columns(worst: Outcome | None) -> dict[str, str]:
                 relative=format_relative(worst.relative))
 
 
-def make_row(finding: Finding) -> Row:
-    """The text of one finding, from its worst outcome."""
+def _point_columns(worst: Outcome | None, path: str) -> dict[str, object]:
+    """Method, full point, no-solution message and reproduce command of the worst outcome."""
+    if worst is None:
+        return {}
+    return dict(method=method_text(worst), point=point_texts(worst), error=worst.error,
+                reproduce=reproduce_text(worst, path))
+
+
+def make_row(finding: Finding, path: str = "") -> Row:
+    """The text of one finding, from its worst outcome; `path` is its circuit's file, for the
+    reproduce command (none without it)."""
     worst = finding.worst if finding.outcomes else None
     change, base_margin, margin_change = (_base_columns(finding, worst) if worst
                                           else (finding.change or "", "", ""))
@@ -187,7 +257,7 @@ def make_row(finding: Finding) -> Row:
         check=finding.limit.check, severity=finding.limit.severity, **_worst_columns(worst),
         change=change, base_margin=base_margin, margin_change=margin_change,
         waiver=waiver_text(finding.waiver), drivers=drivers_text(finding),
-        fails_in=format_fraction(finding.fail_fraction),
+        fails_in=format_fraction(finding.fail_fraction), **_point_columns(worst, path),
     )
 
 
@@ -200,10 +270,11 @@ def make_note(note: WaiverNote) -> NoteRow:
 
 
 def _worst_first(rows: list[Row]) -> tuple[Row, ...]:
-    """Most negative relative margin first; undefined relative margins last, order kept."""
+    """No operating point first (−inf), then most negative relative margin; undefined relative
+    margins last, order kept."""
     def key(row: Row) -> float:
         relative = row.finding.worst.relative if row.finding.outcomes else math.inf
-        return relative if math.isfinite(relative) else math.inf
+        return math.inf if math.isnan(relative) or relative == math.inf else relative
     return tuple(sorted(rows, key=key))
 
 
@@ -251,7 +322,8 @@ def _base_sentence(findings: Findings) -> str:
 
 def build_view(findings: Findings) -> ReportView:
     """The shared view of a check run, for Markdown, HTML and the terminal."""
-    rows = [make_row(f) for f in findings.findings]
+    paths = circuit_paths(findings)
+    rows = [make_row(f, paths.get(f.circuit, "")) for f in findings.findings]
     return ReportView(
         verdict=make_verdict(findings),
         failures=_worst_first([r for r in rows if r.status == "fail"]),
@@ -259,10 +331,11 @@ def build_view(findings: Findings) -> ReportView:
         waived=tuple(r for r in rows if r.status == "waived"),
         expired=tuple(make_note(n) for n in findings.expired_waivers),
         unused=tuple(make_note(n) for n in findings.unused_waivers),
-        fixed=tuple(make_row(f) for f in findings.fixed),
+        fixed=tuple(make_row(f, paths.get(f.circuit, "")) for f in findings.fixed),
         rows=tuple(rows),
         base_ref=findings.base_ref,
         analysis=analysis_sentence(findings.analysis),
         with_drivers=findings.analysis.mode != "nominal",
         with_fractions=findings.analysis.mode == "monte-carlo",
+        with_method=findings.analysis.mode == "worst-case",
     )

@@ -13,6 +13,7 @@ from pathlib import Path
 
 import pytest
 from report_bike_light import ROOT, bike_light, bike_light_with_base, operating_points
+from report_charger import charger
 
 from checker import __version__
 from checker.report import (render_html, render_json, render_junit, render_markdown, render_sarif,
@@ -29,6 +30,8 @@ RENDERS = {
     "tail_light_base.sarif": lambda: render_sarif(bike_light_with_base(), Path(ROOT)),
     "tail_light_solve.txt": lambda: render_solve_table(operating_points()) + "\n",
     "tail_light_solve.json": lambda: render_solve_json("tail_light", operating_points()) + "\n",
+    "charger_worstcase.md": lambda: render_markdown(charger()),
+    "charger_worstcase.json": lambda: render_json(charger()),
 }
 
 
