@@ -17,7 +17,7 @@ from typing import Callable, Iterator, Sequence
 from checker.analysis.montecarlo import monte_carlo, outcomes_in_order
 from checker.analysis.sensitivity import Key, Target, outcomes_at, swings
 from checker.analysis.tolerances import toleranced
-from checker.analysis.worstcase import MAX_TOLERANCED_PARTS, worst_case
+from checker.analysis.worstcase import DEFAULT_VERTEX_VALUES, MAX_TOLERANCED_PARTS, worst_case
 from checker.design import Design, OperatingPoint
 from checker.errors import NodegateError
 from checker.findings import Analysis, CircuitResult, Finding, Findings, Outcome
@@ -65,9 +65,11 @@ def _nominal(points: Sequence[OperatingPoint], targets: Sequence[Target]) -> dic
     return {key: Result(tuple(outcomes)) for key, outcomes in found.items()}
 
 
-def _worst_case(design: Design, points: Sequence[OperatingPoint], targets: Sequence[Target]) -> dict[Key, Result]:
+def _worst_case(design: Design, points: Sequence[OperatingPoint], targets: Sequence[Target],
+                analysis: Analysis) -> dict[Key, Result]:
     results = {}
-    for key, pairs in worst_case(design, points, targets).items():
+    vertex_values = DEFAULT_VERTEX_VALUES if analysis.vertex_values is None else analysis.vertex_values
+    for key, pairs in worst_case(design, points, targets, vertex_values).items():
         worst = min(pairs, key=lambda pair: pair[0].margin)
         results[key] = Result(tuple(outcome for outcome, _ in pairs), worst[1])
     return results
@@ -123,7 +125,7 @@ def analyse(limit_set: LimitSet, designs: Sequence[Design], today: datetime.date
             targets = targets_of(limit_set, design.name)
             if analysis.mode == "worst-case":
                 report(f"{design.name}: worst-case corners")
-                results.update(_worst_case(design, points, targets))
+                results.update(_worst_case(design, points, targets, analysis))
             elif analysis.mode == "monte-carlo":
                 results.update(_monte_carlo(design, points, targets, analysis, report))
             else:

@@ -22,17 +22,20 @@ from checker.findings import CircuitResult, Finding, Findings, Limit, Outcome, W
 from checker.limits.compiler import Absent, CaseValues, DeclaredValues, NoMatch, Scope, Unresolved, compile_condition
 from checker.limits.files import LimitFile, unique_ids
 from checker.limits.margins import Verdict
+from checker.limits.sides import Split, split_check
 from checker.limits.syntax import Locator, parse_expression
 from checker.limits.waivers import apply_waivers
 
 
 @dataclass(frozen=True)
 class CompiledItem:
-    """One item of a limit in one circuit: the part of an `each` limit (or None) and its compiled check."""
+    """One item of a limit in one circuit: the part of an `each` limit (or None), its compiled check,
+    and the check split into its one-sided comparisons (for worst-case analysis)."""
 
     part: str | None
     location: Location | None
     check: Callable[[object], Verdict]
+    split: Split
 
     def outcome(self, values: CaseValues, corner: str = "") -> Outcome | None:
         """The outcome in one case; None when a part or net the check reads is absent in that case."""
@@ -86,7 +89,7 @@ def compile_limit(limit: Limit, design: Design, trees: tuple | None = None) -> C
     check_tree, where_tree = trees or _parse(limit)
     scope = Scope.of(design, _locator(limit.check, limit))
     if limit.each is None:
-        return CompiledLimit(limit, design.name, (CompiledItem(None, None, compile_condition(check_tree, scope)),))
+        return CompiledLimit(limit, design.name, (_item(None, None, check_tree, scope),))
     where_scope = dataclasses.replace(scope, where=_locator(limit.where or "", limit), static=True)
     declared = DeclaredValues(design)
     items = []
@@ -95,9 +98,12 @@ def compile_limit(limit: Limit, design: Design, trees: tuple | None = None) -> C
             continue
         if where_tree is not None and not _where_holds(where_tree, dataclasses.replace(where_scope, item=part), declared):
             continue
-        check = compile_condition(check_tree, dataclasses.replace(scope, item=part))
-        items.append(CompiledItem(part.name, part.location, check))
+        items.append(_item(part.name, part.location, check_tree, dataclasses.replace(scope, item=part)))
     return CompiledLimit(limit, design.name, tuple(items))
+
+
+def _item(part: str | None, location: Location | None, tree, scope: Scope) -> CompiledItem:
+    return CompiledItem(part, location, compile_condition(tree, scope), split_check(tree, scope))
 
 
 def _parse(limit: Limit) -> tuple:

@@ -16,7 +16,7 @@ from analysis_circuits import TODAY
 
 import checker.analysis.montecarlo
 import checker.analysis.sensitivity
-import checker.analysis.worstcase
+import checker.analysis.boxpoints
 from checker.analysis import analyse
 from checker.analysis.sensitivity import Swing
 from checker.analysis.tolerances import Tolerance
@@ -28,7 +28,7 @@ from checker.solver import solve_cases
 
 EXAMPLE = Path(__file__).resolve().parents[3] / "examples" / "weather_station" / "nodegate.yaml"
 SAME = 1e-9
-USERS = (checker.analysis.montecarlo, checker.analysis.sensitivity, checker.analysis.worstcase)
+USERS = (checker.analysis.montecarlo, checker.analysis.sensitivity, checker.analysis.boxpoints)
 
 
 def example_run(analysis: Analysis) -> Findings:

@@ -127,7 +127,7 @@ def test_nominal_is_kept_when_no_corner_is_worse():
 def test_too_many_toleranced_parts_is_an_error(monkeypatch):
     monkeypatch.setattr(worstcase, "MAX_TOLERANCED_PARTS", 2)
     with pytest.raises(DesignError) as caught:
-        run(divider_text(tol_v=0.01), ("voltage(mid) <= 3 V",), WORST)
+        run(divider_text(tol_v=0.01), ("voltage(mid) <= 3 V",), Analysis("worst-case", vertex_values=2))
     assert "at most 2" in caught.value.message
 
 
@@ -135,5 +135,7 @@ def test_without_tolerances_worst_case_is_nominal():
     findings = run(divider_text(tol_r=0.0), ("voltage(mid) <= 3 V",), WORST)
     finding = findings.findings[0]
     assert finding.worst.margin == pytest.approx(0.5, rel=1e-12)
-    assert finding.worst.corner == "" and finding.drivers == ()
+    # A box of one point: nominal is the worst, and solving that one vertex proves it.
+    assert finding.worst.corner == "nominal" and finding.drivers == ()
+    assert finding.worst.method == "vertices" and finding.worst.proved
     assert findings.analysis == WORST

@@ -1,0 +1,92 @@
+"""Solving one case at many points of its tolerance box, and the limits' sides there.
+
+A point is a row of deviations, one per toleranced value (`Tolerance`), each within
+±tol. `BoxPoints.evaluate` gives the values the limits' side functions read at a
+batch of points: exactly and without Python per point for a linear circuit
+(`LinearBox`), by Newton-Raphson from the nominal point otherwise (a warm start). A
+point where the circuit has no operating point is not an error of the whole check:
+it is reported as failing every limit of the case there (`errors`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+
+from checker.analysis.linearbox import LinearBox
+from checker.analysis.stacked import Stacked, stack_points
+from checker.analysis.tolerances import Tolerance, perturbed
+from checker.design import Netlist, OperatingPoint
+from checker.errors import NodegateError
+from checker.limits.sides import Split
+from checker.solver import Cache, solve_cases
+
+Solved = OperatingPoint | str  # an operating point, or why there is none
+
+
+@dataclass
+class Batch:
+    """The values at a batch of points: `values` covers the points where `ok`; `errors` the rest."""
+
+    values: Stacked | None
+    ok: np.ndarray
+    errors: dict[int, str]
+
+    def side_keys(self, split: Split) -> np.ndarray:
+        """(sides, points) ranking keys of every side; −inf where there is no operating point."""
+        keys = np.full((len(split.sides), self.ok.size), -np.inf)
+        if self.values is not None:
+            margins = split.margins(self.values)
+            keys[:, self.ok] = split.keys(self.values, margins)
+        return keys
+
+    def side_margins(self, split: Split) -> np.ndarray:
+        margins = np.full((len(split.sides), self.ok.size), -np.inf)
+        if self.values is not None:
+            margins[:, self.ok] = split.margins(self.values)
+        return margins
+
+
+class BoxPoints:
+    """One case of a circuit, solved at any points of its tolerance box; counts its solves."""
+
+    def __init__(self, netlist: Netlist, tolerances: Sequence[Tolerance], nominal: OperatingPoint, cache: Cache):
+        self.netlist, self.tolerances, self.nominal, self.cache = netlist, tuple(tolerances), nominal, cache
+        self.fractions = np.array([t.fraction for t in self.tolerances])
+        self.box = LinearBox.of(netlist, self.tolerances, cache) if self.tolerances else None
+        self.solves = 0
+
+    @property
+    def linear(self) -> bool:
+        return self.box is not None
+
+    def netlist_at(self, deviations: np.ndarray) -> Netlist:
+        return perturbed(self.netlist, {t.part: float(d) for t, d in zip(self.tolerances, deviations) if d != 0.0})
+
+    def evaluate(self, deviations: np.ndarray) -> Batch:
+        """The values at every row of `deviations` (points, values)."""
+        deviations = np.atleast_2d(deviations)
+        self.solves += len(deviations)
+        if self.box is not None:
+            return Batch(self.box.stacked(deviations), np.ones(len(deviations), bool), {})
+        solved = self.solve(deviations)
+        ok = np.array([not isinstance(s, str) for s in solved], bool)
+        errors = {i: s for i, s in enumerate(solved) if isinstance(s, str)}
+        points = [s for s in solved if not isinstance(s, str)]
+        return Batch(stack_points(points) if points else None, ok, errors)
+
+    def solve(self, deviations: np.ndarray) -> list[Solved]:
+        """The ordinary solver at every row (what confirms a reported point), started at nominal."""
+        netlists = [self.netlist_at(row) for row in np.atleast_2d(deviations)]
+        try:
+            return list(solve_cases(netlists, self.cache, [self.nominal] * len(netlists)))
+        except NodegateError:
+            return [self._solve_one(netlist) for netlist in netlists]
+
+    def _solve_one(self, netlist: Netlist) -> Solved:
+        try:
+            return solve_cases([netlist], self.cache, [self.nominal])[0]
+        except NodegateError as error:
+            return error.message

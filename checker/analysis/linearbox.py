@@ -1,0 +1,186 @@
+"""Exact operating points of a linear circuit at many points of its tolerance box at once.
+
+A linear circuit's MNA matrix is a sum of per-part stamps, and a tolerance moves one
+part's conductance (a rank-one update u g uᵀ, u = e_from − e_to) or one source value
+(the right-hand side). With the nominal matrix A₀ factorised once, the solution at
+any point follows from the Sherman-Morrison-Woodbury identity (Woodbury, "Inverting
+modified matrices", Memorandum Report 42, Princeton, 1950; Golub & Van Loan, "Matrix
+Computations", 4th ed., 2013, sec. 2.1.4 — section from memory):
+
+    (A₀ + U D Uᵀ)⁻¹ = A₀⁻¹ − A₀⁻¹ U (I + D Uᵀ A₀⁻¹ U)⁻¹ D Uᵀ A₀⁻¹
+
+so each point costs one k×k solve (k = toleranced conductances, at most a few dozen),
+stacked over thousands of points in one numpy call: no Python per point. Only
+circuits whose every device is a linear two-terminal part qualify (`LinearBox.of`
+returns None otherwise); the answer is exact up to rounding, and each reported point
+is still confirmed by the ordinary solver.
+"""
+
+from __future__ import annotations
+
+from typing import Sequence
+
+import numpy as np
+from scipy.sparse.linalg import splu
+
+from checker.analysis.stacked import LazyMap, PartArrays, PartValues, Stacked
+from checker.analysis.tolerances import Tolerance, perturbed
+from checker.design import Netlist
+from checker.devices.base import GROUND, LinearTwoTerminal, Role
+from checker.solver import Cache
+from checker.solver.assembly import assemble
+
+CHUNK_ENTRIES = 4_000_000  # points x unknowns held at once (32 MB of float64)
+
+
+class LinearBox:
+    """One case of a linear circuit, ready to be solved at any deviations of its toleranced values."""
+
+    def __init__(self, netlist: Netlist, tolerances: Sequence[Tolerance], system, lu):
+        self.netlist, self.tolerances = netlist, tuple(tolerances)
+        self.system = system
+        n = system.size
+        topology = system.topology
+        positions = {part.name: m for m, part in enumerate(netlist.parts)}
+        self._where = {name: (int(topology.group_of[m]), int(topology.row_of[m])) for name, m in positions.items()}
+        self._inverse = np.array([_law(netlist.parts[positions[t.part]]) for t in self.tolerances], dtype=bool)
+        self._nominal = np.array([self._device_row(t.part)[0].value[self._device_row(t.part)[1]]
+                                  for t in self.tolerances])
+        roles = np.array([self._device_row(t.part)[0].role[self._device_row(t.part)[1]] for t in self.tolerances])
+        self._conductance = np.flatnonzero(roles == Role.CONDUCTANCE)
+        self._source = np.flatnonzero((roles == Role.VOLTAGE) | (roles == Role.CURRENT))
+        U = np.zeros((n, self._conductance.size))
+        for column, j in enumerate(self._conductance):
+            device, row = self._device_row(self.tolerances[j].part)
+            a, b = device.nodes[row]
+            if a != GROUND:
+                U[a, column] += 1.0
+            if b != GROUND:
+                U[b, column] -= 1.0
+        S = np.zeros((n, self._source.size))  # right-hand side per unit of each source's value
+        for column, j in enumerate(self._source):
+            device, row = self._device_row(self.tolerances[j].part)
+            if device.role[row] == Role.VOLTAGE:
+                S[device.branch[row], column] = 1.0
+            else:
+                a, b = device.nodes[row]
+                if a != GROUND:
+                    S[a, column] -= 1.0
+                if b != GROUND:
+                    S[b, column] += 1.0
+        solve = (lambda m: lu.solve(m)) if n else (lambda m: m)
+        self._y0 = solve(system.rhs.copy()) if n else np.zeros(0)
+        self._Z = solve(U) if U.size else np.zeros((n, 0))
+        self._R = solve(S) if S.size else np.zeros((n, 0))
+        self._W = U.T @ self._Z
+        self._Uy0, self._UR = U.T @ self._y0, U.T @ self._R
+
+    @classmethod
+    def of(cls, netlist: Netlist, tolerances: Sequence[Tolerance], cache: Cache | None = None) -> "LinearBox | None":
+        """The box of a case whose devices are all linear two-terminal parts and whose values move as
+        `value` says (checked against the devices at +tol); None otherwise (the general path applies)."""
+        system = assemble(netlist, (cache or Cache()).topology(netlist))
+        if not all(isinstance(d, LinearTwoTerminal) and not d.nonlinear for d in system.devices):
+            return None
+        try:
+            lu = splu(system.matrix.tocsc()) if system.size else None
+        except RuntimeError:
+            return None
+        box = cls(netlist, tolerances, system, lu)
+        return box if box._laws_hold(cache) else None
+
+    def _device_row(self, part: str):
+        group, row = self._where[part]
+        return self.system.devices[group], row
+
+    def _laws_hold(self, cache: Cache | None) -> bool:
+        """Each toleranced value moves its device value as `value` assumes (1/(1+d) or 1+d)."""
+        if not self.tolerances:
+            return True
+        moved = perturbed(self.netlist, {t.part: t.fraction for t in self.tolerances})
+        system = assemble(moved, (cache or Cache()).topology(moved))
+        expected = self.device_values(np.array([[t.fraction for t in self.tolerances]]))[0]
+        for j, t in enumerate(self.tolerances):
+            group, row = self._where[t.part]
+            device = system.devices[group]
+            if device.role[row] != self._device_row(t.part)[0].role[row]:
+                return False
+            if not np.isclose(device.value[row], expected[j], rtol=1e-12, atol=0.0):
+                return False
+        return True
+
+    def device_values(self, deviations: np.ndarray) -> np.ndarray:
+        """(points, k) deviations -> each toleranced part's device value (S, V or A) at each point."""
+        factor = np.where(self._inverse, 1.0 / (1.0 + deviations), 1.0 + deviations)
+        return self._nominal * factor
+
+    def solve(self, deviations: np.ndarray) -> np.ndarray:
+        """(points, k) deviations -> (points, unknowns) solutions, in chunks that bound memory."""
+        deviations = np.atleast_2d(np.asarray(deviations, float))
+        n = self.system.size
+        chunk = max(1, CHUNK_ENTRIES // max(n, 1))
+        return np.concatenate([self._solve(deviations[start:start + chunk])
+                               for start in range(0, len(deviations), chunk)] or [np.zeros((0, n))])
+
+    def _solve(self, deviations: np.ndarray) -> np.ndarray:
+        values = self.device_values(deviations)
+        delta = values - self._nominal
+        ds, dg = delta[:, self._source], delta[:, self._conductance]
+        y = self._y0 + ds @ self._R.T
+        if not self._conductance.size:
+            return y
+        uy = self._Uy0 + ds @ self._UR.T
+        k = self._conductance.size
+        K = np.eye(k) + dg[:, :, None] * self._W[None, :, :]
+        t = np.linalg.solve(K, (dg * uy)[:, :, None])[:, :, 0]
+        return y - t @ self._Z.T
+
+    def stacked(self, deviations: np.ndarray) -> Stacked:
+        """The values the limits read at every point."""
+        deviations = np.atleast_2d(np.asarray(deviations, float))
+        x = self.solve(deviations)
+        points = len(deviations)
+        x_ext = np.concatenate([x, np.zeros((points, 1))], axis=1)  # column -1 is ground, 0 V
+        values = self.device_values(deviations)
+        index = {t.part: j for j, t in enumerate(self.tolerances)}
+        nets = {name: number for number, name in enumerate(self.system.nets[1:])}
+        ground = self.system.nets[0]
+
+        def net(name: str) -> np.ndarray:
+            return np.zeros(points) if name == ground else x_ext[:, nets[name]]
+
+        def value_of(part: str, device, row) -> np.ndarray:
+            j = index.get(part)
+            return np.full(points, device.value[row]) if j is None else values[:, j]
+
+        def result(name: str) -> PartArrays:
+            device, row = self._device_row(name)
+            a, b = device.nodes[row]
+            voltage = x_ext[:, a] - x_ext[:, b]
+            role = device.role[row]
+            if role == Role.CONDUCTANCE:
+                current = value_of(name, device, row) * voltage
+            elif role == Role.VOLTAGE:
+                current = x_ext[:, device.branch[row]]
+            elif role == Role.CURRENT:
+                current = value_of(name, device, row)
+            else:
+                current = np.zeros(points)
+            return PartArrays(voltage * current, {"from": current, "to": -current}, voltage, current)
+
+        parts = {part.name: part for part in self.netlist.parts}
+
+        def part(name: str) -> PartValues:
+            declared = parts[name]
+            j = index.get(name)
+            value = declared.value if j is None or declared.value is None else declared.value * (1 + deviations[:, j])
+            return PartValues(value, dict(declared.props))
+
+        known_nets = set(self.system.nets)
+        return Stacked(self.netlist.case, self.netlist.ambient, points, LazyMap(net, known_nets.__contains__),
+                       LazyMap(result, self._where.__contains__), LazyMap(part, parts.__contains__))
+
+
+def _law(part) -> bool:
+    """True where the device value is the inverse of the toleranced value (a conductance of a resistance)."""
+    return part.value_unit == "ohm"
