@@ -46,6 +46,14 @@ class Part:
     def nets(self) -> tuple[str, ...]:
         return tuple(net for _, net in self.pins)
 
+    def copy_with(self, **changes) -> "Part":
+        """A copy with some fields changed: `dataclasses.replace` without re-running `__init__`
+        (which checks nothing here), because tolerance analysis makes hundreds of thousands."""
+        copy = object.__new__(Part)
+        copy.__dict__.update(self.__dict__)
+        copy.__dict__.update(changes)
+        return copy
+
     @property
     def two_terminal(self) -> bool:
         return tuple(pin for pin, _ in self.pins) == ("from", "to")

@@ -16,6 +16,7 @@ from typing import Sequence
 import numpy as np
 
 from checker.analysis.linearbox import LinearBox
+from checker.analysis.blocks import JointSolver
 from checker.analysis.stacked import Stacked, stack_points
 from checker.analysis.tolerances import Tolerance, perturbed
 from checker.design import Netlist, OperatingPoint
@@ -24,6 +25,7 @@ from checker.limits.sides import Split
 from checker.solver import Cache, solve_cases
 
 Solved = OperatingPoint | str  # an operating point, or why there is none
+BLOCKS = 64  # variants of a nonlinear case solved as one joint circuit (checker.analysis.blocks)
 
 
 @dataclass
@@ -56,6 +58,7 @@ class BoxPoints:
         self.netlist, self.tolerances, self.nominal, self.cache = netlist, tuple(tolerances), nominal, cache
         self.fractions = np.array([t.fraction for t in self.tolerances])
         self.box = LinearBox.of(netlist, self.tolerances, cache) if self.tolerances else None
+        self.joint = JointSolver(netlist, nominal, cache)
         self.solves = 0
 
     @property
@@ -71,11 +74,15 @@ class BoxPoints:
         self.solves += len(deviations)
         if self.box is not None:
             return Batch(self.box.stacked(deviations), np.ones(len(deviations), bool), {})
-        solved = self.solve(deviations)
+        netlists = [self.netlist_at(row) for row in deviations]
+        solved = []
+        for start in range(0, len(netlists), BLOCKS):
+            solved += self.joint.solve(netlists[start:start + BLOCKS])
         ok = np.array([not isinstance(s, str) for s in solved], bool)
         errors = {i: s for i, s in enumerate(solved) if isinstance(s, str)}
-        points = [s for s in solved if not isinstance(s, str)]
-        return Batch(stack_points(points) if points else None, ok, errors)
+        good = [(s, n) for s, n in zip(solved, netlists) if not isinstance(s, str)]
+        values = stack_points([s for s, _ in good], [n for _, n in good]) if good else None
+        return Batch(values, ok, errors)
 
     def solve(self, deviations: np.ndarray) -> list[Solved]:
         """The ordinary solver at every row (what confirms a reported point), started at nominal."""

@@ -15,7 +15,7 @@ from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
-from checker.design import OperatingPoint
+from checker.design import Netlist, OperatingPoint
 
 
 class LazyMap(Mapping):
@@ -64,28 +64,56 @@ class Stacked:
         self.nets, self.results, self.parts = nets, results, parts
 
 
-def stack_points(points: Sequence[OperatingPoint]) -> Stacked:
-    """Operating points of one case (same parts fitted, values moved) side by side."""
-    first = points[0]
+Located = tuple[OperatingPoint, int]
+"""An operating point and which block of it one variant is: -1 when the point is the variant's
+own, n for block n of a joint solve (`checker.analysis.blocks`: parts block-major)."""
+
+
+def stack_points(solved: Sequence[Located], netlists: Sequence[Netlist]) -> Stacked:
+    """The values of solved variants of one case (same parts fitted, values moved) side by side."""
+    first = netlists[0]
+    ground, count = first.ground, len(first.parts)
+    position = {part.name: m for m, part in enumerate(first.parts)}
+    runs = _runs(solved)
 
     def net(name: str) -> np.ndarray:
-        return np.array([p.nets[name] for p in points])
+        if name == ground:
+            return np.zeros(len(solved))
+        return np.array([point.nets[name if block < 0 else f"{name}#{block}"] for point, block in solved])
 
     def result(name: str) -> PartArrays:
-        found = [p.parts[name] for p in points]
-        pins = {pin: np.array([r.pins[pin] for r in found]) for pin in found[0].pins}
-        power = np.array([r.power for r in found])
-        if found[0].voltage is None:
-            return PartArrays(power, pins)
-        return PartArrays(power, pins, np.array([r.voltage for r in found]), np.array([r.current for r in found]))
+        pieces = [point.parts.columns(np.maximum(blocks, 0) * count + position[name]) for point, blocks in runs]
+        pins = pieces[0][0]
+        currents = np.concatenate([piece[1] for piece in pieces])
+        power = np.concatenate([piece[3] for piece in pieces])
+        by_pin = {pin: currents[:, n] for n, pin in enumerate(pins)}
+        if pieces[0][2] is None:
+            return PartArrays(power, by_pin)
+        return PartArrays(power, by_pin, np.concatenate([piece[2] for piece in pieces]), currents[:, 0])
 
-    lookups = [{part.name: part for part in p.netlist.parts} for p in points]
+    lookups = [{part.name: part for part in netlist.parts} for netlist in netlists]
 
     def part(name: str) -> PartValues:
         parts = [lookup[name] for lookup in lookups]
         value = None if parts[0].value is None else np.array([p.value for p in parts])
-        props = {key: np.array([p.props[key] for p in parts]) for key in parts[0].props}
-        return PartValues(value, props)
+        return PartValues(value, {key: np.array([p.props[key] for p in parts]) for key in parts[0].props})
 
-    return Stacked(first.case, first.ambient, len(points), LazyMap(net, first.nets.__contains__),
-                   LazyMap(result, first.parts.__contains__), LazyMap(part, lookups[0].__contains__))
+    nets = set(first.nets)
+    return Stacked(first.case, first.ambient, len(solved), LazyMap(net, nets.__contains__),
+                   LazyMap(result, position.__contains__), LazyMap(part, position.__contains__))
+
+
+def _runs(solved: Sequence[Located]) -> list[tuple[OperatingPoint, np.ndarray]]:
+    """Consecutive variants from the same operating point, with their block numbers."""
+    runs: list[tuple[OperatingPoint, list[int]]] = []
+    for point, block in solved:
+        if runs and runs[-1][0] is point:
+            runs[-1][1].append(block)
+        else:
+            runs.append((point, [block]))
+    return [(point, np.array(blocks)) for point, blocks in runs]
+
+
+def stack_point(point: OperatingPoint) -> Stacked:
+    """One operating point as a stack of one."""
+    return stack_points([(point, -1)], [point.netlist])

@@ -65,8 +65,8 @@ def primary_values(netlist: Netlist, fraction: float) -> tuple[Tolerance, ...]:
 def _moved(part: Part, deviation: float) -> Part:
     factor = 1.0 + deviation
     if _moved_value(part) == "vout":
-        return dataclasses.replace(part, props={**part.props, "vout": part.props["vout"] * factor})
-    return dataclasses.replace(part, value=part.value * factor)
+        return part.copy_with(props={**part.props, "vout": part.props["vout"] * factor})
+    return part.copy_with(value=part.value * factor)
 
 
 def perturbed(netlist: Netlist, deviations: Mapping[str, float]) -> Netlist:

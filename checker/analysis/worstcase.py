@@ -12,10 +12,10 @@ margin rules. Three methods, in order (docs/analysis.md says what each proves):
    one-at-a-time swings point to, re-linearise there and flip every value whose
    derivative changed sign, until the corner is stable.
 3. **interior**: where a side can peak inside the box (a power, anything in a
-   nonlinear circuit, an `or`), a bounded L-BFGS-B search from the nominal point and
-   the worst corner found (Byrd, Lu, Nocedal & Zhu, "A limited memory algorithm for
-   bound constrained optimization", SIAM J. Sci. Comput. 16(5), 1995, as in
-   scipy.optimize), with finite-difference gradients from batched solves.
+   nonlinear circuit, an `or`), a bounded projected-gradient descent (Nocedal &
+   Wright, "Numerical Optimization", 2nd ed., 2006, sec. 16.7 — from memory) from
+   the worst point found and from nominal, with finite-difference slopes; all
+   descents of a case move in step, so each round is one batch of solves.
 
 Every reported point is confirmed by the ordinary solver, and the nominal point is
 always a candidate, so a worst case is never better than nominal. A point without an
@@ -28,11 +28,10 @@ from dataclasses import dataclass, field, replace
 from typing import Sequence
 
 import numpy as np
-from scipy.optimize import minimize
 
 from checker.analysis.boxpoints import BoxPoints, Solved
 from checker.analysis.sensitivity import MAX_DRIVERS, RESOLUTION, Key, Target, outcomes_at
-from checker.analysis.stacked import stack_points
+from checker.analysis.stacked import stack_point
 from checker.analysis.tolerances import Tolerance, corner_label, toleranced
 from checker.design import Design, Netlist, OperatingPoint
 from checker.errors import DesignError
@@ -44,8 +43,10 @@ DEFAULT_VERTEX_VALUES = 16
 MAX_TOLERANCED_PARTS = 200  # per case, beyond the vertex bound: each corner-search round solves k + 1 points
 VERTEX_CHUNK = 8192  # vertices evaluated per batch
 CORNER_ROUNDS = 8  # re-linearisations per side before the corner search stops
-SEARCH_ITERATIONS = 30  # L-BFGS-B iterations per start
-NONLINEAR_SEARCH_SOLVES = 3000  # per case: the interior search's budget of Newton solves
+SEARCH_ROUNDS = 25  # rounds of the interior descent
+MIN_STEP = 1e-3  # a descent whose step (a share of the tolerance) falls below this has stopped
+LINEAR_SEARCH_SOLVES = 2_000_000  # per case: the interior search's budget of points (exact linear solves)
+NONLINEAR_SEARCH_SOLVES = 5_000  # per case: the same, for Newton-Raphson solves
 STEP = 1e-3  # finite-difference step, as a share of each value's tolerance
 NOMINAL = "nominal"
 METHOD_ORDER = {"vertices": 0, "corner-search": 1, "interior": 2}
@@ -155,13 +156,14 @@ def _vertices(box: BoxPoints, searches: list[TargetSearch]) -> None:
         for search in searches:
             keys = batch.side_keys(search.split)
             combined = search.split.combine(keys)
-            i = int(np.argmin(combined))
-            if combined[i] < best.get(id(search), (np.inf,))[0]:
+            i = _first_lowest(combined)
+            if combined[i] < best.get(id(search), (np.inf,))[0] - _noise(combined[i]):
                 best[id(search)] = (float(combined[i]), rows[i])
-            lows = keys.min(axis=1)
-            for s in np.flatnonzero(lows < search.side_low):
-                search.side_low[s] = lows[s]
-                side_best[id(search)][s] = rows[int(np.argmin(keys[s]))]
+            for s in range(len(search.split.sides)):
+                j = _first_lowest(keys[s])
+                if keys[s, j] < search.side_low[s] - _noise(keys[s, j]):
+                    search.side_low[s] = keys[s, j]
+                    side_best[id(search)][s] = rows[j]
     for search in searches:
         key, row = best[id(search)]
         search.best_key = key
@@ -174,6 +176,13 @@ def _vertices(box: BoxPoints, searches: list[TargetSearch]) -> None:
 
 def _noise(key: float) -> float:
     return RESOLUTION * max(abs(key), 1e-300) if np.isfinite(key) else 0.0
+
+
+def _first_lowest(keys: np.ndarray) -> int:
+    """The first index whose key is the lowest within solver noise: ties between points that differ
+    only in values that do not matter go to the same point whatever the rounding."""
+    lowest = float(np.min(keys))
+    return int(np.flatnonzero(keys <= lowest + _noise(lowest))[0])
 
 
 # --- 2. corner search past the bound -------------------------------------------------------
@@ -207,6 +216,19 @@ def _stable_corner(box: BoxPoints, split: Split, side: int, signs: np.ndarray) -
 
 # --- 3. inside the box ---------------------------------------------------------------------
 
+@dataclass
+class Descent:
+    """One local search: a formula of one target's sides, where it stands (u: each value over its
+    tolerance, in [−1, 1]), the key there and its slope, and its step length."""
+
+    search: TargetSearch
+    formula: object
+    u: np.ndarray
+    key: float = np.inf
+    slope: np.ndarray | None = None
+    step: float = 0.5
+
+
 def _conjuncts(tree) -> list:
     """The parts of a formula that are minimised on their own: the children of a top-level min."""
     if isinstance(tree, Node) and tree.op == "min":
@@ -214,49 +236,74 @@ def _conjuncts(tree) -> list:
     return [tree]
 
 
-def _interior(box: BoxPoints, searches: list[TargetSearch]) -> None:
-    """A bounded local search inside the box from nominal and the worst corner, closest targets first."""
-    order = sorted((s for s in searches if not s.proved), key=lambda s: s.best_key)
-    for search in order:
-        if not box.linear and box.solves > NONLINEAR_SEARCH_SOLVES:
-            break
-        split = search.split
-        for formula in _conjuncts(split.tree):
-            worst = min(search.candidates, key=lambda c: _key_at(box, split, formula, c.deviations))
-            for start in (np.zeros(len(box.tolerances)), worst.deviations):
-                row = _descend(box, split, formula, start)
-                if row is not None:
-                    search.candidates.append(Candidate(row, "interior"))
-
-
-def _key_at(box: BoxPoints, split: Split, formula, row: np.ndarray) -> float:
-    return float(_formula_keys(split, formula, box.evaluate(row[None, :]).side_keys(split))[0])
-
-
 def _formula_keys(split: Split, formula, side_keys: np.ndarray) -> np.ndarray:
     return Split(split.sides, formula, split.mixed_units).combine(side_keys)
 
 
-def _descend(box: BoxPoints, split: Split, formula, start: np.ndarray) -> np.ndarray | None:
-    """L-BFGS-B on one formula's key within the box, scaled so every value spans [−1, 1]."""
-    fractions = box.fractions
-    h = STEP
+def _interior(box: BoxPoints, searches: list[TargetSearch]) -> None:
+    """Projected-gradient descents inside the box, all in step so that every round is one batch.
 
-    def key_and_slope(u: np.ndarray) -> tuple[float, np.ndarray]:
-        base = u * fractions
-        steps = np.where(u + h <= 1.0, h, -h)
-        rows = np.vstack([base, base + np.diag(steps * fractions)])
-        keys = _formula_keys(split, formula, box.evaluate(rows).side_keys(split))
-        if not np.all(np.isfinite(keys)):
-            keys = np.where(np.isfinite(keys), keys, -1e300)
-        return float(keys[0]), (keys[1:] - keys[0]) / steps
+    Each formula of each unproved target starts at the worst point found so far and, budget
+    permitting, at nominal; closest targets first. Slopes are forward differences.
+    """
+    pending = sorted((s for s in searches if not s.proved), key=lambda s: s.best_key)
+    jobs = [(search, formula) for search in pending for formula in _conjuncts(search.split.tree)]
+    if not jobs:
+        return
+    k = len(box.tolerances)
+    budget = LINEAR_SEARCH_SOLVES if box.linear else NONLINEAR_SEARCH_SOLVES
+    fits = max(1, budget // ((k + 1) * (SEARCH_ROUNDS + 1)))
+    starts = _worst_starts(box, jobs[:fits])
+    descents = [Descent(search, formula, start / box.fractions) for (search, formula), start in zip(jobs, starts)]
+    descents += [Descent(search, formula, np.zeros(k)) for search, formula in jobs[:max(0, fits - len(jobs))]]
+    descents = descents[:fits]
+    _measure(box, descents, [d.u for d in descents])
+    for _ in range(SEARCH_ROUNDS):
+        moving = [d for d in descents if d.step > MIN_STEP and np.any(d.slope != 0.0)]
+        if not moving:
+            break
+        proposals = [np.clip(d.u - d.step * d.slope / np.max(np.abs(d.slope)), -1.0, 1.0) for d in moving]
+        before = [(d.u, d.key, d.slope) for d in moving]
+        _measure(box, moving, proposals)
+        for d, (u, key, slope) in zip(moving, before):
+            if d.key < key:
+                d.step = min(2.0 * d.step, 2.0)
+            else:
+                d.u, d.key, d.slope, d.step = u, key, slope, d.step / 4.0
+    for d in descents:
+        d.search.candidates.append(Candidate(d.u * box.fractions, "interior"))
 
-    try:
-        result = minimize(key_and_slope, start / fractions, jac=True, method="L-BFGS-B",
-                          bounds=[(-1.0, 1.0)] * fractions.size, options={"maxiter": SEARCH_ITERATIONS})
-    except (ValueError, FloatingPointError):
-        return None
-    return np.clip(result.x, -1.0, 1.0) * fractions
+
+def _worst_starts(box: BoxPoints, jobs: list) -> list[np.ndarray]:
+    """For each (target, formula): the candidate found so far with the lowest key of that formula."""
+    rows = [c.deviations for search, _ in jobs for c in search.candidates]
+    if not rows:
+        return [np.zeros(len(box.tolerances)) for _ in jobs]
+    batch = box.evaluate(np.array(rows))
+    starts, offset = [], 0
+    for search, formula in jobs:
+        count = len(search.candidates)
+        keys = _formula_keys(search.split, formula, batch.side_keys(search.split))[offset:offset + count]
+        starts.append(search.candidates[int(np.argmin(keys))].deviations if count else np.zeros(len(box.tolerances)))
+        offset += count
+    return starts
+
+
+def _measure(box: BoxPoints, descents: list[Descent], at: list[np.ndarray]) -> None:
+    """Key and slope of every descent at its point `at` (in u), in one batch of (k + 1) rows each."""
+    k = len(box.tolerances)
+    rows = []
+    for u in at:
+        steps = np.where(u + STEP <= 1.0, STEP, -STEP)
+        base = u * box.fractions
+        rows += [base, *(base + np.diag(steps * box.fractions))]
+    batch = box.evaluate(np.array(rows))
+    for number, (d, u) in enumerate(zip(descents, at)):
+        keys = _formula_keys(d.search.split, d.formula, batch.side_keys(d.search.split))
+        keys = keys[number * (k + 1):(number + 1) * (k + 1)]
+        keys = np.where(np.isfinite(keys), keys, -1e300)
+        steps = np.where(u + STEP <= 1.0, STEP, -STEP)
+        d.u, d.key, d.slope = u, float(keys[0]), (keys[1:] - keys[0]) / steps
 
 
 # --- confirmation by the ordinary solver ---------------------------------------------------
@@ -282,7 +329,7 @@ def _confirmed(box: BoxPoints, search: TargetSearch, swing: tuple[np.ndarray, np
         if outcome is None:
             continue
         rank = _rank(outcome, split)
-        if rank[:2] < best_rank[:2]:
+        if rank[0] < best_rank[0] - RESOLUTION * _size(outcome) or (rank[:2] < best_rank[:2] and rank[0] == best_rank[0]):
             best, best_rank, origin = outcome, rank, (candidate, result)
     if origin is None:
         method = "vertices" if search.proved else "interior"
@@ -294,6 +341,12 @@ def _confirmed(box: BoxPoints, search: TargetSearch, swing: tuple[np.ndarray, np
     proved = search.proved and candidate.method == "vertices"
     return replace(best, corner=label, method=candidate.method, proved=proved,
                    point=_point(box, candidate.deviations)), drivers
+
+
+def _size(outcome: Outcome) -> float:
+    """What a margin's solver noise is measured against: the larger of the compared values."""
+    size = max(abs(outcome.value), abs(outcome.bound))
+    return size if np.isfinite(size) else 0.0
 
 
 def _outcome_at(target: Target, nominal: Outcome, result: Solved) -> Outcome | None:
@@ -320,7 +373,7 @@ def _drivers(box: BoxPoints, search: TargetSearch, swing: tuple[np.ndarray, np.n
     """The values that move the deciding side most over their bands (one at a time, at nominal)."""
     side = _deciding_side(search.split, result)
     up, down = swing
-    size = search.split.sides[side].size(stack_points([box.nominal]))[0]
+    size = search.split.sides[side].size(stack_point(box.nominal))[0]
     change = side_changes(up[side], down[side], size)
     order = np.argsort(-change, kind="stable")
     return tuple((box.tolerances[i].part, float(change[i])) for i in order[:MAX_DRIVERS] if change[i] > 0)
@@ -330,7 +383,7 @@ def _deciding_side(split: Split, result: Solved) -> int:
     """The side whose key equals the check's at this point (the first side without a point)."""
     if isinstance(result, str) or len(split.sides) == 1:
         return 0
-    values = stack_points([result])
+    values = stack_point(result)
     keys = split.keys(values, split.margins(values))[:, 0]
     combined = split.combine(keys[:, None])[0]
     return int(np.argmin(np.abs(keys - combined)))

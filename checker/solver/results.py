@@ -110,6 +110,14 @@ class PartResults(Mapping):
             return PartResult(power, pins)
         return PartResult(power, pins, float(group.voltage[row]), pins["from"])
 
+    def columns(self, positions: np.ndarray) -> tuple[tuple[str, ...], np.ndarray, np.ndarray | None, np.ndarray]:
+        """The results of the parts at these netlist positions, all of one kind, as arrays: pin names,
+        currents into the pins (parts, pins), voltage (None for multi-terminal kinds) and power."""
+        group = self._groups[int(self._group[positions[0]])]
+        rows = self._row[positions]
+        voltage = None if group.voltage is None else group.voltage[rows]
+        return group.pins, group.currents[rows], voltage, group.power[rows]
+
     def __contains__(self, name: object) -> bool:
         return name in self._index()
 

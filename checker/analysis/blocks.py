@@ -1,0 +1,85 @@
+"""Many variants of one nonlinear case solved as one circuit: each variant a block sharing ground.
+
+A tolerance analysis solves the same board at hundreds of points. Solving each as
+its own netlist costs Python per point (assembly, every Newton iteration's stamps).
+Placed side by side in one netlist, the variants' equations are block-diagonal
+(they meet only at ground, the reference, which is not an unknown), so one
+Newton-Raphson run on the whole solves every block: the devices of a kind stamp all
+blocks in one numpy call, and the convergence test is per unknown, so each block is
+solved to the same tolerance as alone. Where the joint run fails (one block has no
+operating point, or needs continuation), the batch is split in halves down to single
+variants, which get the solver's full treatment and report their own error.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Sequence
+
+from checker.analysis.stacked import Located
+from checker.design import Netlist, OperatingPoint
+from checker.errors import NodegateError
+from checker.solver import Cache, solve_cases
+
+MARK = "#"  # joins a name and its block number; never part of a name in the circuit language
+
+
+class JointSolver:
+    """Solves variants of one case (the same parts, other values) as blocks of one netlist."""
+
+    def __init__(self, netlist: Netlist, nominal: OperatingPoint, cache: Cache):
+        self.netlist, self.nominal, self.cache = netlist, nominal, cache
+        self._names: list[tuple] = []  # per block: each part's name and pins there
+        self._copies: list[tuple] = []  # per block: each part of the case renamed for it
+
+    def _renamed(self, number: int) -> tuple:
+        while len(self._names) <= number:
+            suffix, ground = f"{MARK}{len(self._names)}", self.netlist.ground
+            self._names.append(tuple(
+                (part.name + suffix, tuple((pin, net if net == ground else net + suffix) for pin, net in part.pins))
+                for part in self.netlist.parts))
+        return self._names[number]
+
+    def side_by_side(self, netlists: Sequence[Netlist]) -> Netlist:
+        """One netlist with every given netlist as its own block (a part a variant leaves as it is
+        reuses its renamed copy)."""
+        parts = []
+        for number, netlist in enumerate(netlists):
+            fixed = self._fixed(number)
+            parts += [fixed[m] if part is base else part.copy_with(name=name, pins=pins)
+                      for m, (part, base, (name, pins)) in enumerate(zip(netlist.parts, self.netlist.parts,
+                                                                            self._renamed(number)))]
+        return dataclasses.replace(self.netlist, parts=tuple(parts))
+
+    def _fixed(self, number: int) -> tuple:
+        while len(self._copies) <= number:
+            names = self._renamed(len(self._copies))
+            self._copies.append(tuple(part.copy_with(name=name, pins=pins)
+                                      for part, (name, pins) in zip(self.netlist.parts, names)))
+        return self._copies[number]
+
+    def solve(self, netlists: Sequence[Netlist]) -> list[Located | str]:
+        """Each netlist's operating point and block number there, or the message of why it has none."""
+        if len(netlists) == 1:
+            try:
+                return [(solve_cases(netlists, self.cache, [self.nominal])[0], -1)]
+            except NodegateError as error:
+                return [error.message]
+        try:
+            joint = solve_cases([self.side_by_side(netlists)], self.cache, [_Guess(self.nominal, len(netlists))])[0]
+        except NodegateError:
+            joint = None
+        if joint is None or joint.strategy not in ("newton", "linear"):  # continuation may pick other branches
+            half = len(netlists) // 2
+            return self.solve(netlists[:half]) + self.solve(netlists[half:])
+        return [(joint, number) for number in range(len(netlists))]
+
+
+class _Guess:
+    """A warm start for the joint netlist: every block at the nominal net voltages."""
+
+    def __init__(self, nominal: OperatingPoint, count: int):
+        ground = nominal.netlist.ground
+        self.nets = {f"{net}{MARK}{number}": volts for number in range(count)
+                     for net, volts in nominal.nets.items() if net != ground}
+        self.parts: dict = {}
