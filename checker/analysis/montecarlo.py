@@ -13,6 +13,7 @@ docs/analysis.md).
 
 from __future__ import annotations
 
+import math
 import zlib
 from dataclasses import dataclass, field
 from typing import Callable, Sequence
@@ -22,6 +23,7 @@ import numpy as np
 from checker.analysis.sensitivity import Key, Target, outcomes_at
 from checker.analysis.tolerances import Tolerance, perturbed, toleranced
 from checker.design import Design, Netlist, OperatingPoint
+from checker.errors import NodegateError
 from checker.findings import Outcome
 from checker.solver import Cache, solve_cases
 
@@ -83,13 +85,38 @@ def monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Seque
     rng = generator(seed, design.name)
     step = max(samples // PROGRESS_STEPS, 1)
     cache = Cache()  # every sample has the nominal topologies: number nets and find patterns once
+    nominal = {p.case: outcomes_at(active[p.case], p) for p in points}
     for sample in range(1, samples + 1):
         draw = dict(zip(names, rng.uniform(-1.0, 1.0, len(names))))
-        solved = solve_cases(_board(netlists, tolerances, draw), cache, points)
-        tally.add({p.case: outcomes_at(active[p.case], p, f"sample {sample}") for p in solved})
+        corner = f"sample {sample}"
+        solved = _solved(_board(netlists, tolerances, draw), cache, points)
+        tally.add({netlist.case: (outcomes_at(active[netlist.case], found, corner) if not isinstance(found, str)
+                                  else unsolved(nominal[netlist.case], found, corner))
+                   for netlist, found in zip(netlists, solved)})
         if sample % step == 0 or sample == samples:
             report(f"{design.name}: {sample} of {samples} samples")
     return tally, samples
+
+
+def _solved(netlists: Sequence[Netlist], cache: Cache, points: Sequence[OperatingPoint]) -> list[OperatingPoint | str]:
+    """Every case of one board, or for a case with no operating point the solver's message."""
+    try:
+        return list(solve_cases(netlists, cache, points))
+    except NodegateError:
+        found: list[OperatingPoint | str] = []
+        for netlist, point in zip(netlists, points):
+            try:
+                found.append(solve_cases([netlist], cache, [point])[0])
+            except NodegateError as error:
+                found.append(error.message)
+        return found
+
+
+def unsolved(nominal: dict[Key, Outcome], message: str, corner: str) -> dict[Key, Outcome]:
+    """Every limit of a case fails where the circuit has no operating point: value and bound unknown,
+    margin −inf, the solver's message kept (RULES.md: a verdict never passes what was not solved)."""
+    return {key: Outcome(o.case, math.nan, math.nan, -math.inf, -math.inf, o.unit, o.absolute, holds=False,
+                         corner=corner, error=message) for key, o in nominal.items()}
 
 
 def outcomes_in_order(tally: Tally, key: Key, cases: Sequence[str]) -> list[Outcome]:

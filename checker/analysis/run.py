@@ -15,15 +15,16 @@ from dataclasses import dataclass
 from typing import Callable, Iterator, Sequence
 
 from checker.analysis.montecarlo import monte_carlo, outcomes_in_order
-from checker.analysis.sensitivity import Key, Target, outcomes_at, swings
+from checker.analysis.boxpoints import BoxPoints
+from checker.analysis.sensitivity import Key, Target, outcomes_at, side_swings
 from checker.analysis.tolerances import toleranced
-from checker.analysis.worstcase import DEFAULT_VERTEX_VALUES, MAX_TOLERANCED_PARTS, worst_case
+from checker.analysis.worstcase import DEFAULT_VERTEX_VALUES, MAX_TOLERANCED_PARTS, deciding_side, worst_case
 from checker.design import Design, OperatingPoint
 from checker.errors import NodegateError
 from checker.findings import Analysis, CircuitResult, Finding, Findings, Outcome
 from checker.limits.engine import LimitSet
 from checker.limits.waivers import apply_waivers
-from checker.solver import solve_cases
+from checker.solver import Cache, solve_cases
 
 Drivers = tuple[tuple[str, float], ...]
 
@@ -77,14 +78,17 @@ def _worst_case(design: Design, points: Sequence[OperatingPoint], targets: Seque
 
 def _local_drivers(design: Design, points: Sequence[OperatingPoint], targets: Sequence[Target],
                    worst_case_of: dict[Key, str]) -> dict[Key, Drivers]:
-    """Drivers from the Swing at the nominal point of each target's worst case (one batch per case)."""
+    """Drivers at the nominal point of each target's worst case: the side deciding there (one batch per case)."""
     drivers: dict[Key, Drivers] = {}
+    cache = Cache()
     for netlist, point in zip(design.netlists, points):
         group = [t for t in targets if worst_case_of.get(t.key) == netlist.case]
         tolerances = toleranced(netlist)
         if group and tolerances and len(tolerances) <= MAX_TOLERANCED_PARTS:
-            found = swings(netlist, group, tolerances, nominal=point)
-            drivers.update({key: swing.drivers() for key, swing in found.items()})
+            box = BoxPoints(netlist, tolerances, point, cache)
+            for key, swing in side_swings(box, group).items():
+                target = next(t for t in group if t.key == key)
+                drivers[key] = swing.drivers(deciding_side(target.item.split, point))
     return drivers
 
 

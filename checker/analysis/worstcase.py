@@ -30,7 +30,8 @@ from typing import Sequence
 import numpy as np
 
 from checker.analysis.boxpoints import BoxPoints, Solved
-from checker.analysis.sensitivity import MAX_DRIVERS, RESOLUTION, Key, Target, outcomes_at
+from checker.analysis.montecarlo import unsolved
+from checker.analysis.sensitivity import RESOLUTION, Key, SideSwing, Target, outcomes_at, side_swings
 from checker.analysis.stacked import stack_point
 from checker.analysis.tolerances import Tolerance, corner_label, toleranced
 from checker.design import Design, Netlist, OperatingPoint
@@ -105,34 +106,13 @@ def case_worst(netlist: Netlist, point: OperatingPoint, targets: Sequence[Target
                           netlist.case_location, ("use `tolerances: monte-carlo` in nodegate.yaml for larger circuits",))
     box = BoxPoints(netlist, tolerances, point, cache or Cache())
     searches = [TargetSearch(t, nominal[t.key]) for t in present]
-    swings = _swings(box, searches)
+    swings = side_swings(box, present)
     if len(tolerances) <= vertex_values:
         _vertices(box, searches)
     else:
         _corner_search(box, searches, swings)
     _interior(box, searches)
     return {s.target.key: _confirmed(box, s, swings[s.target.key]) for s in searches}
-
-
-# --- one-at-a-time swings: drivers and first corners ---------------------------------------
-
-def _swings(box: BoxPoints, searches: list[TargetSearch]) -> dict[Key, tuple[np.ndarray, np.ndarray]]:
-    """Per target, each side's margin with each value alone at +tol and at −tol: (sides, values) twice."""
-    k = len(box.tolerances)
-    rows = np.concatenate([np.diag(box.fractions), -np.diag(box.fractions)])
-    batch = box.evaluate(rows)
-    found = {}
-    for search in searches:
-        margins = batch.side_margins(search.split)
-        found[search.target.key] = (margins[:, :k], margins[:, k:])
-    return found
-
-
-def side_changes(up: np.ndarray, down: np.ndarray, scale: np.ndarray) -> np.ndarray:
-    """|side(+tol) − side(−tol)| per side and value, 0 within solver noise (RESOLUTION of the scale)."""
-    with np.errstate(invalid="ignore"):
-        change = np.abs(up - down)
-    return np.where(np.isfinite(change) & (change > RESOLUTION * scale), change, 0.0)
 
 
 # --- 1. every vertex -----------------------------------------------------------------------
@@ -187,13 +167,12 @@ def _first_lowest(keys: np.ndarray) -> int:
 
 # --- 2. corner search past the bound -------------------------------------------------------
 
-def _corner_search(box: BoxPoints, searches: list[TargetSearch],
-                   swings: dict[Key, tuple[np.ndarray, np.ndarray]]) -> None:
+def _corner_search(box: BoxPoints, searches: list[TargetSearch], swings: dict[Key, SideSwing]) -> None:
     """Per side: from the swings' corner, re-linearise and flip values until the corner is stable."""
     for search in searches:
-        up, down = swings[search.target.key]
+        swing = swings[search.target.key]
         for side in range(len(search.split.sides)):
-            signs = np.where(up[side] < down[side], 1.0, -1.0)
+            signs = np.where(swing.up[side] < swing.down[side], 1.0, -1.0)
             row = _stable_corner(box, search.split, side, signs)
             search.candidates.append(Candidate(row, "corner-search"))
         keys = box.evaluate(np.array([c.deviations for c in search.candidates])).side_keys(search.split)
@@ -314,7 +293,7 @@ def _rank(outcome: Outcome, split: Split) -> tuple[float, bool, int]:
     return (outcome.relative if split.mixed_units else outcome.margin, outcome.holds, 0)
 
 
-def _confirmed(box: BoxPoints, search: TargetSearch, swing: tuple[np.ndarray, np.ndarray]) -> tuple[Outcome, Drivers]:
+def _confirmed(box: BoxPoints, search: TargetSearch, swing: SideSwing) -> tuple[Outcome, Drivers]:
     """The lowest margin among the candidates, each solved again by the ordinary solver; nominal included."""
     unique: dict[bytes, Candidate] = {}
     for candidate in sorted(search.candidates, key=lambda c: METHOD_ORDER[c.method]):
@@ -333,9 +312,9 @@ def _confirmed(box: BoxPoints, search: TargetSearch, swing: tuple[np.ndarray, np
             best, best_rank, origin = outcome, rank, (candidate, result)
     if origin is None:
         method = "vertices" if search.proved else "interior"
-        return replace(best, method=method, proved=search.proved), _drivers(box, search, swing, box.nominal)
+        return replace(best, method=method, proved=search.proved), swing.drivers(deciding_side(search.split, box.nominal))
     candidate, result = origin
-    drivers = _drivers(box, search, swing, result)
+    drivers = swing.drivers(deciding_side(search.split, result))
     order = [name for name, _ in drivers]
     label = corner_label(_ordered(box, candidate.deviations, order))
     proved = search.proved and candidate.method == "vertices"
@@ -351,8 +330,7 @@ def _size(outcome: Outcome) -> float:
 
 def _outcome_at(target: Target, nominal: Outcome, result: Solved) -> Outcome | None:
     if isinstance(result, str):
-        return Outcome(nominal.case, float("nan"), float("nan"), -np.inf, -np.inf, nominal.unit, nominal.absolute,
-                       holds=False, error=result)
+        return unsolved({target.key: nominal}, result, "")[target.key]
     return outcomes_at([target], result).get(target.key)
 
 
@@ -363,23 +341,12 @@ def _point(box: BoxPoints, deviations: np.ndarray) -> tuple[tuple[str, float], .
 def _ordered(box: BoxPoints, deviations: np.ndarray, order: list[str]) -> list[tuple[str, float]]:
     """(value name, deviation) of the moved values, the drivers first, the rest in netlist order."""
     rank = {name: i for i, name in enumerate(order)}
-    moved = [(t.name, float(d), t.part) for t, d in zip(box.tolerances, deviations) if d != 0.0]
-    moved.sort(key=lambda entry: rank.get(entry[2], len(rank)))
-    return [(name, d) for name, d, _ in moved]
+    moved = [(t.name, float(d)) for t, d in zip(box.tolerances, deviations) if d != 0.0]
+    moved.sort(key=lambda entry: rank.get(entry[0], len(rank)))
+    return moved
 
 
-def _drivers(box: BoxPoints, search: TargetSearch, swing: tuple[np.ndarray, np.ndarray],
-             result: Solved) -> Drivers:
-    """The values that move the deciding side most over their bands (one at a time, at nominal)."""
-    side = _deciding_side(search.split, result)
-    up, down = swing
-    size = search.split.sides[side].size(stack_point(box.nominal))[0]
-    change = side_changes(up[side], down[side], size)
-    order = np.argsort(-change, kind="stable")
-    return tuple((box.tolerances[i].part, float(change[i])) for i in order[:MAX_DRIVERS] if change[i] > 0)
-
-
-def _deciding_side(split: Split, result: Solved) -> int:
+def deciding_side(split: Split, result: Solved) -> int:
     """The side whose key equals the check's at this point (the first side without a point)."""
     if isinstance(result, str) or len(split.sides) == 1:
         return 0

@@ -2,9 +2,10 @@
 
 Runs the configuration's tolerance analysis for this limit only (and only on the
 circuits it applies to), then prints, per circuit and item, a table of every case's
-value, bound, margin and status, the waiver if any, and the sensitivity of the worst
-case's margin to each toleranced part (±1 % on every part's value when the circuit
-has no tolerances), largest first.
+value, bound, margin and status (with how each worst case was found), the waiver if
+any, and for each one-sided comparison of the check (each end of a range, each sign
+of `abs`, ...) the toleranced values that move it, largest first (±1 % on every
+value when the circuit has no tolerances).
 """
 
 from __future__ import annotations
@@ -13,9 +14,12 @@ import argparse
 import datetime
 from pathlib import Path
 
+import numpy as np
+
 from checker.analysis import analyse
 from checker.analysis.run import targets_of
-from checker.analysis.sensitivity import Swing, swings
+from checker.analysis.boxpoints import BoxPoints
+from checker.analysis.sensitivity import SideSwing, Target, side_swings
 from checker.analysis.tolerances import percent, primary_values, toleranced
 from checker.design import Design
 from checker.errors import ConfigError, did_you_mean
@@ -23,6 +27,7 @@ from checker.findings import Finding, Findings, Limit
 from checker.limits import LimitFile, LimitSet, compile_limits
 from checker.pipeline import analysis_of, load_designs, load_limit_files
 from checker.repo.config import find_config, load_config
+from checker.solver import Cache, solve
 from checker.report.view import (NO_TEXT, STATUS_WORDS, analysis_sentence, case_label, format_fraction,
                                  format_margin, format_number, format_relative, waiver_text)
 
@@ -69,40 +74,54 @@ def header_lines(limit: Limit, findings: Findings) -> list[str]:
 
 
 def case_table(finding: Finding) -> list[str]:
-    rows = [["case", "value", "bound", "margin", "relative", "status"]]
+    methods = any(o.method for o in finding.outcomes)
+    rows = [["case", "value", "bound", "margin", "relative", "status"] + (["found by"] if methods else [])]
     for o in finding.outcomes:
-        rows.append([case_label(o), format_number(o.value, o.unit, o.absolute),
-                     format_number(o.bound, o.unit, o.absolute), format_margin(o.margin, o.unit, o.absolute),
-                     format_relative(o.relative), "holds" if o.holds else "fails"])
-    return ["  " + line for line in _table(rows, {1, 2, 3, 4})]
+        row = [case_label(o), format_number(o.value, o.unit, o.absolute),
+               format_number(o.bound, o.unit, o.absolute), format_margin(o.margin, o.unit, o.absolute),
+               format_relative(o.relative), "holds" if o.holds else "fails"]
+        if methods:
+            row.append(o.method.replace("-", " ") + (", proved" if o.proved else ", searched"))
+        rows.append(row)
+    lines = ["  " + line for line in _table(rows, {1, 2, 3, 4})]
+    return lines + [f"    {o.case}: no operating point: {o.error}" for o in finding.outcomes if o.error]
 
 
-def driver_swing(finding: Finding, design: Design, limit_set: LimitSet) -> tuple[Swing, bool]:
-    """The Swing of the finding's worst case at its nominal point; True when the bands are plain ±1 %."""
+def side_swing(finding: Finding, design: Design, limit_set: LimitSet) -> tuple[Target, SideSwing, bool]:
+    """Each side's swing over each value at the nominal point of the finding's worst case; True when
+    the bands are plain ±1 % (the circuit declares no tolerance)."""
     netlist = design.netlist(finding.worst.case)
     target = next(t for t in targets_of(limit_set, design.name) if t.item.part == finding.item)
     declared = [t for n in design.netlists for t in toleranced(n)]
     bands = toleranced(netlist) if declared else primary_values(netlist, PLAIN_BAND)
-    return swings(netlist, [target], bands)[target.key], not declared
+    box = BoxPoints(netlist, bands, solve(netlist), Cache())
+    return target, side_swings(box, [target])[target.key], not declared
 
 
-def driver_lines(finding: Finding, swing: Swing, plain: bool) -> list[str]:
+def driver_lines(finding: Finding, target: Target, swing: SideSwing, bands: dict[str, float], plain: bool) -> list[str]:
+    """Per side of the check, the values that move it, largest first: a value whose effect on the
+    whole margin cancels at nominal (the centre of a range, the kink of `abs`) still shows on a side."""
     worst = finding.worst
     unit, absolute = worst.unit, worst.absolute
-    order = [i for i in sorted(range(len(swing.tolerances)), key=lambda i: -swing.change[i]) if swing.change[i] > 0]
-    what = "each part's value ±1 % (the circuit declares no tolerance)" if plain else "each part's tolerance band"
-    lines = [f"  parts that drive it (case {worst.case}, margin change over {what}):"]
-    if not order:
-        return lines + ["    none: no toleranced value moves this margin"]
-    rows = [["part", "band", "margin at +band", "margin at \u2212band", "change"]]
-    for i in order[:MAX_DRIVER_ROWS]:
-        band = swing.tolerances[i].fraction
-        rows.append([swing.tolerances[i].part, "\u00b1" + percent(band)[1:],
-                     format_margin(swing.up[i], unit, absolute), format_margin(swing.down[i], unit, absolute),
-                     format_margin(swing.change[i], unit, absolute)])
-    lines += ["    " + line for line in _table(rows, {2, 3, 4})]
-    if len(order) > MAX_DRIVER_ROWS:
-        lines.append(f"    and {len(order) - MAX_DRIVER_ROWS} more that move it less")
+    what = "each value ±1 % (the circuit declares no tolerance)" if plain else "each value over its tolerance band"
+    lines = [f"  values that move each side (case {worst.case}, at nominal, {what}):"]
+    for number, side in enumerate(target.item.split.sides):
+        change = swing.change(number)
+        order = [i for i in np.argsort(-change, kind="stable") if change[i] > 0]
+        lines.append(f"    side {number + 1}: {side.text}")
+        if not order:
+            lines.append("      none: no toleranced value moves this side")
+            continue
+        rows = [["value", "band", "margin at +band", "margin at \u2212band", "change"]]
+        for i in order[:MAX_DRIVER_ROWS]:
+            name = swing.names[i]
+            rows.append([name, "\u00b1" + percent(bands[name])[1:],
+                         format_margin(swing.up[number, i], unit, absolute),
+                         format_margin(swing.down[number, i], unit, absolute),
+                         format_margin(change[i], unit, absolute)])
+        lines += ["      " + line for line in _table(rows, {2, 3, 4})]
+        if len(order) > MAX_DRIVER_ROWS:
+            lines.append(f"      and {len(order) - MAX_DRIVER_ROWS} more that move it less")
     return lines
 
 
@@ -114,7 +133,10 @@ def finding_lines(finding: Finding, design: Design, limit_set: LimitSet) -> list
         lines.append(f"  fails in {format_fraction(finding.fail_fraction)} of the samples")
     if finding.waiver is not None:
         lines.append(f"  waived: {waiver_text(finding.waiver)}")
-    return lines + driver_lines(finding, *driver_swing(finding, design, limit_set))
+    target, swing, plain = side_swing(finding, design, limit_set)
+    netlist = design.netlist(finding.worst.case)
+    bands = {t.name: t.fraction for t in (primary_values(netlist, PLAIN_BAND) if plain else toleranced(netlist))}
+    return lines + driver_lines(finding, target, swing, bands, plain)
 
 
 def explain_lines(limit: Limit, findings: Findings, designs: list[Design], limit_set: LimitSet) -> list[str]:

@@ -49,10 +49,11 @@ def test_explain_shows_the_check_each_case_and_ordered_drivers(tmp_path, capsys)
     for case, margin in margins.items():
         line = next(line for line in out.splitlines() if line.strip().startswith(case))
         assert format_margin(margin, "V") in line
-    # Drivers at the worst case (full): VBAT's 2 % band moves the margin by 0.04 * 4.2 V * K, the two
-    # 1 % resistors by about 2 * 0.01 * 4.2 V * K (1 - K) each, so VBAT comes first.
-    assert "parts that drive it (case full" in out
-    drivers = out[out.index("parts that drive it"):]
+    # Drivers at the worst case (full), for each end of the range: VBAT's 2 % band moves the side by
+    # 0.04 * 4.2 V * K, the two 1 % resistors by about 2 * 0.01 * 4.2 V * K (1 - K) each, so VBAT comes first.
+    assert "values that move each side (case full" in out
+    assert "side 1: voltage(sense) >= 0.9 V" in out and "side 2: voltage(sense) <= 1.3 V" in out
+    drivers = out[out.index("side 2: voltage(sense) <= 1.3 V"):]
     assert drivers.index("VBAT") < drivers.index("R_TOP") and drivers.index("VBAT") < drivers.index("R_BOT")
     assert format_margin(0.04 * 4.2 * K, "V") in drivers
 

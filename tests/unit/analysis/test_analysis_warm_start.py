@@ -15,12 +15,10 @@ import pytest
 from analysis_circuits import TODAY
 
 import checker.analysis.montecarlo
-import checker.analysis.sensitivity
 import checker.analysis.blocks
 import checker.analysis.boxpoints
 from checker.analysis import analyse
-from checker.analysis.sensitivity import Swing
-from checker.analysis.tolerances import Tolerance
+from checker.analysis.sensitivity import SideSwing
 from checker.findings import Analysis, Findings
 from checker.limits import compile_limits
 from checker.pipeline import load_designs, load_limit_files
@@ -29,8 +27,7 @@ from checker.solver import solve_cases
 
 EXAMPLE = Path(__file__).resolve().parents[3] / "examples" / "weather_station" / "nodegate.yaml"
 SAME = 1e-9
-USERS = (checker.analysis.montecarlo, checker.analysis.sensitivity, checker.analysis.boxpoints,
-         checker.analysis.blocks)
+USERS = (checker.analysis.montecarlo, checker.analysis.boxpoints, checker.analysis.blocks)
 
 
 def example_run(analysis: Analysis) -> Findings:
@@ -82,10 +79,10 @@ def test_example_board_same_findings_with_fewer_iterations(monkeypatch, analysis
     assert np.mean(warm_spent) < 0.6 * np.mean(cold_spent)
 
 
-def test_margin_changes_within_solver_noise_count_as_none():
-    # Arithmetic: A moves the margin by 1e-13 (noise below its 1e-9 floor), B by 0.5, C by exactly 0.
-    tolerances = (Tolerance("A", 0.01), Tolerance("B", 0.05), Tolerance("C", 0.01))
-    swing = Swing(tolerances, np.array([1.0, 2.0, 3.0]), np.array([1.0 + 1e-13, 2.5, 3.0]), np.array([1e-9] * 3))
-    assert swing.change.tolist() == [0.0, 0.5, 0.0]
-    assert swing.lowering_signs().tolist() == [0.0, 1.0, 0.0]
-    assert swing.drivers() == (("B", 0.5),)
+def test_side_changes_within_solver_noise_count_as_none():
+    # Arithmetic: A moves the side by 1e-13 (noise below its 1e-9 floor of a side of size 1), B by 0.5,
+    # C by exactly 0.
+    swing = SideSwing(("A", "B", "C"), np.array([[1.0, 2.0, 3.0]]), np.array([[1.0 + 1e-13, 2.5, 3.0]]),
+                      np.array([1.0]))
+    assert swing.change(0).tolist() == [0.0, 0.5, 0.0]
+    assert swing.drivers(0) == (("B", 0.5),)

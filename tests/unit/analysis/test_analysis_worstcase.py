@@ -14,13 +14,15 @@ import pytest
 from analysis_circuits import divider_text, run
 
 from checker.analysis import worstcase
-from checker.analysis.sensitivity import Target, swings
+from checker.analysis.boxpoints import BoxPoints
+from checker.analysis.sensitivity import Target, side_swings
 from checker.analysis.run import targets_of
 from checker.analysis.tolerances import toleranced
 from checker.errors import DesignError
 from checker.findings import Analysis
 from checker.language import parse_design
 from checker.limits import compile_limits, load_limit_text
+from checker.solver import Cache, solve
 
 WORST = Analysis("worst-case")
 
@@ -108,8 +110,9 @@ def test_swing_matches_the_analytic_derivative_of_a_divider():
         "limits:\n  - id: lim\n    about: a\n    check: voltage(mid) >= 0 V\n", "l.yaml")], [design])
     targets = targets_of(limit_set, design.name)
     netlist = design.netlists[0]
-    swing = swings(netlist, targets, toleranced(netlist))[targets[0].key]
-    slope = (swing.up - swing.down) / (2 * t * np.array([r1, r2]))
+    box = BoxPoints(netlist, toleranced(netlist), solve(netlist), Cache())
+    swing = side_swings(box, targets)[targets[0].key]
+    slope = (swing.up[0] - swing.down[0]) / (2 * t * np.array([r1, r2]))
     assert slope[0] == pytest.approx(-vin * r2 / (r1 + r2) ** 2, rel=1e-5)
     assert slope[1] == pytest.approx(vin * r1 / (r1 + r2) ** 2, rel=1e-5)
     assert isinstance(targets[0], Target)
