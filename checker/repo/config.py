@@ -18,8 +18,7 @@ from checker.yamlsource import (
 
 TOP_KEYS = ("circuits", "limits", "analysis", "report")
 ANALYSIS_KEYS = ("tolerances", "samples", "seed", "vertex_values")
-DEFAULT_VERTEX_VALUES = 16  # 65,536 vertices per case at most, unless configured
-MAX_VERTEX_VALUES = 20  # 1,048,576 vertices: the most a configuration may ask for
+MAX_VERTEX_VALUES = 20  # worst-case: 1,048,576 vertices per case, the most a configuration may ask for
 TOLERANCE_MODES = ("nominal", "worst-case", "monte-carlo")
 CONFIG_NAMES = ("nodegate.yaml", "nodegate.yml")  # looked for in this order
 REPORT_FORMAT = {"markdown": "md", "html": "html", "json": "json", "junit": "junit", "sarif": "sarif"}  # key -> format
@@ -48,7 +47,7 @@ class Config:
     tolerances: str = "nominal"
     samples: int = 2000
     seed: int = 1
-    vertex_values: int = DEFAULT_VERTEX_VALUES
+    vertex_values: int | None = None  # None: the analysis's own default (docs/analysis.md)
     reports: dict[str, Path] = field(default_factory=dict)  # format (md, html, ...) -> path
 
 
@@ -185,7 +184,8 @@ def _analysis(value: object, data: LocatedDict) -> dict:
         if mode not in TOLERANCE_MODES:
             raise ConfigError(f"`tolerances` must be one of {', '.join(TOLERANCE_MODES)}", mode.location)
         result["tolerances"] = str(mode)
-    for key, low, high in (("samples", 1, MAX_SAMPLES), ("seed", 0, 2**32 - 1), ("vertex_values", 0, MAX_VERTEX_VALUES)):
+    bounds = (("samples", 1, MAX_SAMPLES), ("seed", 0, 2**32 - 1), ("vertex_values", 0, MAX_VERTEX_VALUES))
+    for key, low, high in bounds:
         if key in section:
             number = section[key]
             if isinstance(number, bool) or not isinstance(number, int) or not low <= number <= high:

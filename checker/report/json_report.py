@@ -89,8 +89,7 @@ def render_json(findings: Findings) -> str:
     document = {
         "schema": SCHEMA,
         "base_ref": findings.base_ref,
-        "analysis": {"mode": findings.analysis.mode, "samples": findings.analysis.samples,
-                     "seed": findings.analysis.seed},
+        "analysis": _analysis(findings.analysis),
         "verdict": verdict_json(findings),
         "limits": [limit_json(limit) for limit in limits.values()],
         "findings": [finding_json(f) for f in findings.findings],
@@ -100,3 +99,11 @@ def render_json(findings: Findings) -> str:
                       "cases": [case_json(p) for p in c.operating_points]} for c in findings.circuits],
     }
     return json.dumps(document, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+def _analysis(analysis) -> dict:
+    """The mode, Monte Carlo's samples and seed, and worst-case's vertex bound (null: the default, 16)."""
+    found = {"mode": analysis.mode, "samples": analysis.samples, "seed": analysis.seed}
+    if analysis.mode == "worst-case":
+        found["vertex_values"] = analysis.vertex_values
+    return found
