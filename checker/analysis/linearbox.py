@@ -132,7 +132,11 @@ class LinearBox:
         uy = self._Uy0 + ds @ self._UR.T
         k = self._conductance.size
         K = np.eye(k) + dg[:, :, None] * self._W[None, :, :]
-        t = np.linalg.solve(K, (dg * uy)[:, :, None])[:, :, 0]
+        rhs = dg * uy
+        try:
+            t = np.linalg.solve(K, rhs[:, :, None])[:, :, 0]
+        except np.linalg.LinAlgError:  # some point has no single solution: find it, one point at a time
+            t = np.array([_solve_or_nan(K[i], rhs[i]) for i in range(len(K))])
         return y - t @ self._Z.T
 
     def stacked(self, deviations: np.ndarray) -> Stacked:
@@ -184,3 +188,12 @@ class LinearBox:
 def _law(part) -> bool:
     """True where the device value is the inverse of the toleranced value (a conductance of a resistance)."""
     return part.value_unit == "ohm"
+
+
+def _solve_or_nan(matrix: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+    """The solution, or NaN where the matrix is singular: the analysis ranks NaN lowest, and the
+    ordinary solver then says why that point has no operating point."""
+    try:
+        return np.linalg.solve(matrix, rhs)
+    except np.linalg.LinAlgError:
+        return np.full_like(rhs, np.nan)

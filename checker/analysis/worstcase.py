@@ -238,10 +238,13 @@ def _interior(box: BoxPoints, searches: list[TargetSearch]) -> None:
     descents = descents[:fits]
     _measure(box, descents, [d.u for d in descents])
     for _ in range(SEARCH_ROUNDS):
-        moving = [d for d in descents if d.step > MIN_STEP and np.any(d.slope != 0.0)]
+        for d in descents:
+            if np.array_equal(_proposal(d), d.u):  # no descent direction left inside the box: a stationary point
+                d.step = 0.0
+        moving = [d for d in descents if d.step > MIN_STEP]
         if not moving:
             break
-        proposals = [np.clip(d.u - d.step * d.slope / np.max(np.abs(d.slope)), -1.0, 1.0) for d in moving]
+        proposals = [_proposal(d) for d in moving]
         before = [(d.u, d.key, d.slope) for d in moving]
         _measure(box, moving, proposals)
         for d, (u, key, slope) in zip(moving, before):
@@ -251,6 +254,14 @@ def _interior(box: BoxPoints, searches: list[TargetSearch]) -> None:
                 d.u, d.key, d.slope, d.step = u, key, slope, d.step / 4.0
     for d in descents:
         d.search.candidates.append(Candidate(d.u * box.fractions, "interior"))
+
+
+def _proposal(d: Descent) -> np.ndarray:
+    """One step down the slope (scaled so the steepest value moves `step`), projected onto the box."""
+    largest = np.max(np.abs(d.slope), initial=0.0)
+    if not largest > 0.0:
+        return d.u
+    return np.clip(d.u - d.step * d.slope / largest, -1.0, 1.0)
 
 
 def _worst_starts(box: BoxPoints, jobs: list) -> list[np.ndarray]:
