@@ -165,13 +165,13 @@ def _condition(node, scope: Scope, sides: list[Side], dims: set):
         return _negate_condition(_condition(node.operand, scope, sides, dims), sides)
     if isinstance(node, Compare):
         dims.add(_unit_of(node.left, scope))
-        value, bound = _number(node.left, scope), _number(node.right, scope)
+        value, bound = _fitting(_number(node.left, scope), _number(node.right, scope))
         return _pair(value, bound, 1 if node.op in ("<=", "<") else -1, sides)
     if isinstance(node, InRange):
         dims.add(_unit_of(node.value, scope))
         value = _number(node.value, scope)
-        low = _pair(value, _number(node.low, scope), -1, sides)
-        high = _pair(value, _number(node.high, scope), 1, sides)
+        low = _pair(*_fitting(value, _number(node.low, scope)), -1, sides)
+        high = _pair(*_fitting(value, _number(node.high, scope)), 1, sides)
         return Node("min", (low, high))
     raise TypeError(f"not a condition: {type(node).__name__}")  # compile_condition rejected it already
 
@@ -185,9 +185,16 @@ def _negate_condition(formula, sides: list[Side]):
     """`not`: every side's margin changes sign, and min and max swap."""
     if isinstance(formula, Node):
         return Node(_FLIP[formula.op], tuple(_negate_condition(child, sides) for child in formula.children))
-    side = sides[formula]
-    sides.append(Side(side.value, side.bound, -side.orient))
-    return len(sides) - 1
+    side = sides[formula]  # every side belongs to one place in the formula: flip it there
+    sides[formula] = Side(side.value, side.bound, -side.orient)
+    return formula
+
+
+def _fitting(value, bound) -> tuple:
+    """Both sides of a comparison, the one with more pieces kept whole when the pairs would pass MAX_SIDES."""
+    if len(_leaves(value)) * len(_leaves(bound)) <= MAX_SIDES:
+        return value, bound
+    return (_whole(value), bound) if len(_leaves(value)) >= len(_leaves(bound)) else (value, _whole(bound))
 
 
 def _pair(value, bound, orient: int, sides: list[Side]):
