@@ -72,7 +72,7 @@ def test_not_flips_the_side_in_place():
     ("current(R1) in 1 mA .. 20 mA", True),
     ("power(R1) <= 100 mW", False),
     ("voltage(a) / R1.value <= 20 mA", False),
-    ("voltage(a) <= 2 * ambient * 1 V/K - 590 V", True),
+    ("voltage(a) <= (ambient - 25 degC) * 10 mV/K + 5 V", True),
 ])
 def test_only_affine_voltages_and_currents_against_constants_are_provable(check, monotone):
     item, _ = split_of(check)
