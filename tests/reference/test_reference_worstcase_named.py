@@ -28,6 +28,7 @@ from checker.errors import NoSolutionError
 from checker.findings import Analysis, Finding
 from checker.language import parse_design
 from checker.limits import compile_limits, load_limit_text
+from checker.report.view import format_margin
 from checker.solver import solve
 
 TODAY = datetime.date(2030, 1, 1)
@@ -91,14 +92,14 @@ def test_regulator_vout_tolerance_fails_its_window():
 
 def test_explain_names_the_regulator_output_among_the_values_that_move_the_limit(tmp_path, capsys):
     # Same rail: only U1.vout moves voltage(out) (the regulator law holds vout whatever the load), by
-    # 2 x 5 % x 3.3 V = 330 mV over its band, so explain's drivers must name U1.vout. (At the worst point
-    # the margin of this centred window is -15 mV at both ends of that band: a driver list built from
-    # the margin's change between the two ends alone would see nothing.)
+    # 2 x 5 % x 3.3 V = 330 mV over its band, so explain's table of values that move the limit must list
+    # U1.vout with that change. (At the worst point the margin of this centred window is -15 mV at both
+    # ends of the band: a list built from the margin's change between the two ends there sees nothing.)
     config = repo(tmp_path, RAIL, "voltage(out) in 3.15 V .. 3.45 V", "rail-window")
     assert main(["explain", "rail-window", "--config", str(config)]) == 0  # explain reports; it never fails
     out = capsys.readouterr().out
-    drivers = out[out.index("parts that drive it"):]
-    assert "U1.vout" in drivers, out
+    rows = [line for line in out.splitlines() if line.strip().startswith("U1.vout")]  # not the corner label
+    assert rows and any(format_margin(2 * 0.05 * 3.3, "V") in row for row in rows), out
 
 
 # --- divider ------------------------------------------------------------------------------------
