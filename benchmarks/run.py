@@ -1,7 +1,9 @@
 """Speed figures for the solver, printed one per line with units; nothing is asserted.
 
-Run from the repository root: `python benchmarks/run.py`. Each benchmark is one
-function returning (label, value, unit) lines, so new ones are added to BENCHMARKS.
+Run from the repository root: `python benchmarks/run.py [NAME ...]`. Each benchmark is one
+function returning (label, value, unit) lines, so new ones are added to BENCHMARKS under a
+name; with names given, only the sections whose name contains one of them run
+(`python benchmarks/run.py worst-case`), and `--list` prints the names.
 Short measurements are the best of REPEATS runs (the least disturbed by other work
 on the machine); docs/models.md ("Performance") records the figures and how to read them.
 """
@@ -185,15 +187,22 @@ def example_board() -> tuple:
 @contextlib.contextmanager
 def counted_starts(warm: bool) -> Iterator[list[int]]:
     """Tolerance analyses with warm starts on, or off (every board solved from the solver's first
-    guess, as before warm starts); yields the Newton iterations of every nonlinear solve."""
-    from checker.analysis import montecarlo, sensitivity, worstcase
+    guess, as before warm starts); yields the Newton iterations of every nonlinear solve (a batch of
+    worst-case variants solved as one joint circuit, checker.analysis.blocks, counts once)."""
+    import checker.analysis.blocks
+    import checker.analysis.boxpoints
+    import checker.analysis.montecarlo
+    import checker.analysis.sensitivity
     spent: list[int] = []
 
     def solve(netlists, cache=None, guesses=None):
         points = solve_cases(netlists, cache, guesses if warm else None)
         spent.extend(p.iterations for p in points if p.strategy != "linear")
         return points
-    saved = [(module, module.solve_cases) for module in (montecarlo, sensitivity, worstcase)]
+    analysis = checker.analysis
+    saved = [(module, module.solve_cases) for module in (analysis.montecarlo, analysis.sensitivity,
+                                                         analysis.boxpoints, analysis.blocks)
+             if hasattr(module, "solve_cases")]  # the modules that solve perturbed boards
     for module, _ in saved:
         module.solve_cases = solve
     try:
@@ -236,15 +245,182 @@ def bench_example_worst_case() -> Iterator[Figure]:
         yield f"  {label} starts: Newton iterations per solve", sum(spent) / len(spent), ""
 
 
-BENCHMARKS: list[Callable[[], Iterator[Figure]]] = [bench_large_grid, bench_cases, bench_nonlinear,
-                                                     bench_tolerances, bench_example_monte_carlo,
-                                                     bench_example_worst_case]
+LADDER_SECTIONS = 24
+LADDER_TOLERANCED = ("RB0", "RT1", "RT6", "RT12", "RT18", "RT24", "RB1", "RB6", "RB12", "RB18", "RB24",
+                     "RR0", "RR12", "RR24")  # with VREF and ISNS: 16 toleranced values, 65,536 vertices
+VERTEX_GOAL = 20_000  # vertex solves per second the worst-case rewrite set out to reach on 2 cores
+CROSS_CHECKS = 20  # random vertices solved again from their own perturbed matrix
 
 
-def main() -> None:
-    for benchmark in BENCHMARKS:
-        for label, value, unit in benchmark():
+def ladder_text(sections: int = LADDER_SECTIONS) -> str:
+    """A sensor front end of our own: a 5 V reference drives two 220 Ω ladders (nets a0..a24 and
+    b0..b24, the bottom one returned to ground through RB0) joined by a 10 kΩ rung at every node,
+    and the sensor's 200 µA excitation is drawn from the far end. 51 nets with ground; 16 values
+    toleranced."""
+    def tol(name: str) -> str:
+        return ", tol = 1%" if name in LADDER_TOLERANCED else ""
+    lines = ['circuit ladder "Sensor front-end ladder"', "ground gnd",
+             "source   VREF from a0 to gnd : 5 V, tol = 1%",
+             f"resistor RB0  from b0 to gnd : 1 kohm{tol('RB0')}"]
+    for k in range(1, sections + 1):
+        lines.append(f"resistor RT{k} from a{k - 1} to a{k} : 220 ohm{tol(f'RT{k}')}")
+        lines.append(f"resistor RB{k} from b{k - 1} to b{k} : 220 ohm{tol(f'RB{k}')}")
+    lines += [f"resistor RR{k} from a{k} to b{k} : 10 kohm{tol(f'RR{k}')}" for k in range(sections + 1)]
+    lines.append(f"load     ISNS from a{sections} to gnd : 200 uA, tol = 5%")
+    return "\n".join(lines) + "\n"
+
+
+LADDER_LIMITS = """limits:
+  - id: mid-tap
+    about: The mid-ladder tap stays inside the ADC's window
+    check: voltage(a12) in 3.0 V .. 3.4 V
+  - id: far-end
+    about: The sensor's excitation end stays inside its common-mode range
+    check: voltage(a24) in 2.5 V .. 2.95 V
+  - id: bridge-difference
+    about: The two ladders differ by at most 300 mV at the mid tap
+    check: abs(voltage(a12) - voltage(b12)) <= 300 mV
+  - id: feed-resistor-power
+    about: The first top resistor dissipates at most 600 uW
+    check: power(RT1) <= 600 uW
+"""
+
+
+def ladder_board() -> tuple:
+    from checker.language import parse_design
+    from checker.limits import compile_limits, load_limit_text
+    design = parse_design(ladder_text(), "ladder.circuit")
+    return design, compile_limits([load_limit_text(LADDER_LIMITS, "limits.yaml")], [design])
+
+
+def vertex_deviations(fractions: np.ndarray) -> np.ndarray:
+    """Every vertex of the box: row i has value j at +tol where bit j of i is set, −tol otherwise."""
+    index = np.arange(1 << fractions.size, dtype=np.int64)[:, None]
+    signs = 2.0 * ((index >> np.arange(fractions.size, dtype=np.int64)) & 1) - 1.0
+    return signs * fractions
+
+
+@contextlib.contextmanager
+def counted_boxes() -> Iterator[list]:
+    """Worst-case analyses with every case's BoxPoints kept, to read its solves afterwards (and the
+    points the ordinary solver confirmed, as `confirmed`)."""
+    from checker.analysis import worstcase
+    made: list = []
+    original = worstcase.BoxPoints
+
+    class Counted(original):
+        def __init__(self, *args, **kwargs):
+            super().__init__(*args, **kwargs)
+            self.confirmed = 0
+            made.append(self)
+
+        def solve(self, deviations):
+            self.confirmed += len(np.atleast_2d(deviations))
+            return super().solve(deviations)
+    worstcase.BoxPoints = Counted
+    try:
+        yield made
+    finally:
+        worstcase.BoxPoints = original
+
+
+def bench_worst_case_vertices() -> Iterator[Figure]:
+    """Every vertex of a 16-value tolerance box of a linear board: LinearBox.solve alone (one
+    factorisation, Woodbury per point) and the whole worst-case analysis, with a cross-check of
+    LinearBox.solve against scipy's spsolve of the perturbed matrices."""
+    from scipy.sparse.linalg import spsolve
+    from checker.analysis import analyse
+    from checker.analysis.linearbox import LinearBox
+    from checker.analysis.tolerances import perturbed, toleranced
+    from checker.findings import Analysis
+    from checker.solver import Cache
+    from checker.solver.assembly import assemble
+    design, limit_set = ladder_board()
+    netlist = design.netlists[0]
+    tolerances = toleranced(netlist)
+    fractions = np.array([t.fraction for t in tolerances])
+    vertices = vertex_deviations(fractions)
+    count = len(vertices)
+    cache = Cache()
+    box = LinearBox.of(netlist, tolerances, cache)
+    solved = box.solve(vertices)  # once outside the timing: numpy's first call warms up
+    seconds = _seconds(lambda: box.solve(vertices), REPEATS)
+    yield (f"LinearBox.solve on a sensor ladder ({len(netlist.parts)} parts, {len(netlist.nets) - 1} nets, "
+           f"{len(tolerances)} toleranced values)"), count, "vertices"
+    yield "  vertex solves per second (goal: 20,000 /s)", count / seconds, "/s"
+    yield "  over the goal", count / seconds / VERTEX_GOAL, "x"
+    today = datetime.date(2030, 1, 1)
+    with counted_boxes() as boxes:
+        whole = _seconds(lambda: analyse(limit_set, [design], today, Analysis("worst-case")), REPEATS)
+    findings = analyse(limit_set, [design], today, Analysis("worst-case"))
+    runs = len(boxes) // len(design.netlists)
+    yield f"worst-case analyse() on the ladder, {len(limit_set.limits)} limits", whole, "s"
+    yield "  vertices per second, whole analysis (goal: 20,000 /s)", count / whole, "/s"
+    yield "  points solved per run (LinearBox, vertices included)", sum(b.solves for b in boxes) / runs, ""
+    yield "  points confirmed by the ordinary solver per run", sum(b.confirmed for b in boxes) / runs, ""
+    yield "  items proved by the vertices", sum(o.proved is True for f in findings.findings for o in f.outcomes), \
+        f"of {sum(len(f.outcomes) for f in findings.findings)}"
+    rng = np.random.default_rng(1)
+    picked = rng.choice(count, CROSS_CHECKS, replace=False)
+    worst, scale = 0.0, 0.0
+    for i in picked:
+        moved = perturbed(netlist, {t.part: float(d) for t, d in zip(tolerances, vertices[i])})
+        system = assemble(moved, cache.topology(moved))
+        direct = spsolve(system.matrix.tocsc(), system.rhs)
+        worst = max(worst, float(np.max(np.abs(solved[i] - direct))))
+        scale = max(scale, float(np.max(np.abs(direct))))
+    yield f"  cross-check at {CROSS_CHECKS} random vertices: largest |LinearBox.solve - spsolve|", worst, "(V or A)"
+    yield "  the same, relative to the largest unknown", worst / scale, ""
+
+
+def bench_example_analysis_ratios(samples: int = 1000) -> Iterator[Figure]:
+    """The example board's check (load, compile, analyse) in each tolerance mode against nominal."""
+    from checker.pipeline import load_designs, run_check
+    from checker.repo.config import load_config
+    config = load_config(EXAMPLE / "nodegate.yaml")
+    cases = sum(len(design.netlists) for design in load_designs(config))
+    today = datetime.date(2030, 1, 1)
+    modes = {"nominal": dataclasses.replace(config, tolerances="nominal"),
+             "worst-case": dataclasses.replace(config, tolerances="worst-case"),
+             "monte-carlo": dataclasses.replace(config, tolerances="monte-carlo", samples=samples, seed=1)}
+    nominal = _seconds(lambda: run_check(modes["nominal"], today), REPEATS)
+    yield "example board: nominal check wall time", nominal, "s"
+    with counted_boxes() as boxes:
+        worst = _seconds(lambda: run_check(modes["worst-case"], today))
+    yield "example board: worst-case check wall time", worst, "s"
+    yield "  worst-case / nominal", worst / nominal, "x"
+    yield "  points solved (every case; batches of variants solved as joint circuits)", \
+        sum(b.solves for b in boxes), ""
+    yield "  points confirmed by the ordinary solver", sum(b.confirmed for b in boxes), ""
+    sampled = _seconds(lambda: run_check(modes["monte-carlo"], today))
+    yield f"example board: monte-carlo check wall time, {samples} samples", sampled, "s"
+    yield "  monte-carlo / nominal", sampled / nominal, "x"
+    yield "  boards solved (samples x cases)", samples * cases, ""
+
+
+BENCHMARKS: dict[str, Callable[[], Iterator[Figure]]] = {
+    "large-grid": bench_large_grid,
+    "cases": bench_cases,
+    "nonlinear": bench_nonlinear,
+    "tolerances": bench_tolerances,
+    "example-monte-carlo": bench_example_monte_carlo,
+    "example-worst-case": bench_example_worst_case,
+    "worst-case-vertices": bench_worst_case_vertices,
+    "example-analysis-ratios": bench_example_analysis_ratios,
+}
+
+
+def main(names: list[str]) -> None:
+    if names == ["--list"]:
+        print("\n".join(BENCHMARKS))
+        return
+    chosen = [name for name in BENCHMARKS if not names or any(wanted in name for wanted in names)]
+    if not chosen:
+        sys.exit(f"no benchmark named like {' '.join(names)}; --list prints the names")
+    for name in chosen:
+        for label, value, unit in BENCHMARKS[name]():
             print(f"{label}: {value:.3g} {unit}".rstrip(), flush=True)
 
+
 if __name__ == "__main__":
-    main()
+    main(sys.argv[1:])
