@@ -12,9 +12,8 @@ margin rules. Three methods, in order (docs/analysis.md says what each proves):
    one-at-a-time swings point to, re-linearise there and flip every value whose
    derivative changed sign, until the corner is stable.
 3. **interior**: where a side can peak inside the box (a power, anything in a
-   nonlinear circuit, an `or`), a bounded projected-gradient descent (Nocedal &
-   Wright, "Numerical Optimization", 2nd ed., 2006, sec. 16.7 — from memory) from
-   the worst point found and from nominal, with finite-difference slopes; all
+   nonlinear circuit, an `or`), a bounded trust-region minimax descent from the worst
+   point found and from nominal, with finite-difference slopes (see `_interior`); all
    descents of a case move in step, so each round is one batch of solves.
 
 Every reported point is confirmed by the ordinary solver, and the nominal point is
@@ -28,6 +27,7 @@ from dataclasses import dataclass, field, replace
 from typing import Sequence
 
 import numpy as np
+from scipy.optimize import linprog
 
 from checker.analysis.boxpoints import BoxPoints, Solved
 from checker.analysis.montecarlo import unsolved
@@ -44,8 +44,9 @@ DEFAULT_VERTEX_VALUES = 16
 MAX_TOLERANCED_PARTS = 200  # per case, beyond the vertex bound: each corner-search round solves k + 1 points
 VERTEX_CHUNK = 8192  # vertices evaluated per batch
 CORNER_ROUNDS = 8  # re-linearisations per side before the corner search stops
-SEARCH_ROUNDS = 25  # rounds of the interior descent
-MIN_STEP = 1e-3  # a descent whose step (a share of the tolerance) falls below this has stopped
+SEARCH_ROUNDS = 40  # rounds of the interior descent
+MIN_RADIUS = 1e-9  # a descent whose trust region (a share of each tolerance) falls below this has stopped
+MIN_RADIUS_NONLINEAR = 1e-6  # the same where solver noise (1e-9 relative) would swamp smaller steps
 LINEAR_SEARCH_SOLVES = 2_000_000  # per case: the interior search's budget of points (exact linear solves)
 NONLINEAR_SEARCH_SOLVES = 5_000  # per case: the same, for Newton-Raphson solves
 STEP = 1e-3  # finite-difference step, as a share of each value's tolerance
@@ -197,15 +198,17 @@ def _stable_corner(box: BoxPoints, split: Split, side: int, signs: np.ndarray) -
 
 @dataclass
 class Descent:
-    """One local search: a formula of one target's sides, where it stands (u: each value over its
-    tolerance, in [−1, 1]), the key there and its slope, and its step length."""
+    """One local search on one formula of one target's sides. `u` is the point with each value
+    over its tolerance (in [−1, 1]); `values` and `slopes` are the sides' keys there and their
+    derivatives in u; `radius` is the trust region (a share of each tolerance)."""
 
     search: TargetSearch
     formula: object
     u: np.ndarray
     key: float = np.inf
-    slope: np.ndarray | None = None
-    step: float = 0.5
+    values: np.ndarray | None = None
+    slopes: np.ndarray | None = None
+    radius: float = 0.5
 
 
 def _conjuncts(tree) -> list:
@@ -220,10 +223,15 @@ def _formula_keys(split: Split, formula, side_keys: np.ndarray) -> np.ndarray:
 
 
 def _interior(box: BoxPoints, searches: list[TargetSearch]) -> None:
-    """Projected-gradient descents inside the box, all in step so that every round is one batch.
+    """Trust-region descents inside the box, all in step so that every round is one batch of solves.
 
-    Each formula of each unproved target starts at the worst point found so far and, budget
-    permitting, at nominal; closest targets first. Slopes are forward differences.
+    Each round linearises the sides that decide the formula near the current point and takes the
+    step that minimises their maximum within the trust region, a small linear programme (the
+    minimax method of Madsen, Schjær-Jacobsen & Voldby, "Automated minimax design of networks",
+    IEEE Trans. Circuits and Systems 22(10), 1975 — from memory): this walks along the kinks of
+    `abs`, `or` and `not` where a plain gradient stalls, and down smooth peaks of a power.
+    Each unproved formula starts at the worst point found so far and, budget permitting, at
+    nominal; the closest targets first.
     """
     pending = sorted((s for s in searches if not s.proved), key=lambda s: s.best_key)
     jobs = [(search, formula) for search in pending for formula in _conjuncts(search.split.tree)]
@@ -236,32 +244,67 @@ def _interior(box: BoxPoints, searches: list[TargetSearch]) -> None:
     descents = [Descent(search, formula, start / box.fractions) for (search, formula), start in zip(jobs, starts)]
     descents += [Descent(search, formula, np.zeros(k)) for search, formula in jobs[:max(0, fits - len(jobs))]]
     descents = descents[:fits]
-    _measure(box, descents, [d.u for d in descents])
+    smallest = MIN_RADIUS if box.linear else MIN_RADIUS_NONLINEAR
+    _measure(box, descents, [d.u for d in descents], smallest)
     for _ in range(SEARCH_ROUNDS):
-        for d in descents:
-            if np.array_equal(_proposal(d), d.u):  # no descent direction left inside the box: a stationary point
-                d.step = 0.0
-        moving = [d for d in descents if d.step > MIN_STEP]
+        moving = [d for d in descents if d.radius >= smallest]
         if not moving:
             break
-        proposals = [_proposal(d) for d in moving]
-        before = [(d.u, d.key, d.slope) for d in moving]
-        _measure(box, moving, proposals)
-        for d, (u, key, slope) in zip(moving, before):
-            if d.key < key:
-                d.step = min(2.0 * d.step, 2.0)
-            else:
-                d.u, d.key, d.slope, d.step = u, key, slope, d.step / 4.0
+        steps = [_step(d) for d in moving]
+        before = [(d.u, d.key, d.values, d.slopes) for d in moving]
+        _measure(box, moving, [np.clip(d.u + p, -1.0, 1.0) for d, (p, _) in zip(moving, steps)], smallest)
+        for d, (p, predicted), (u, key, values, slopes) in zip(moving, steps, before):
+            gain = key - d.key
+            if not gain > 0.0:
+                d.u, d.key, d.values, d.slopes = u, key, values, slopes
+                d.radius /= 4.0
+            elif gain < 0.25 * predicted:
+                d.radius /= 4.0
+            elif gain > 0.75 * predicted and np.max(np.abs(p)) >= 0.99 * d.radius:
+                d.radius = min(2.0 * d.radius, 2.0)
     for d in descents:
         d.search.candidates.append(Candidate(d.u * box.fractions, "interior"))
 
 
-def _proposal(d: Descent) -> np.ndarray:
-    """One step down the slope (scaled so the steepest value moves `step`), projected onto the box."""
-    largest = np.max(np.abs(d.slope), initial=0.0)
-    if not largest > 0.0:
-        return d.u
-    return np.clip(d.u - d.step * d.slope / largest, -1.0, 1.0)
+def _active(formula, values: np.ndarray, reach: float) -> list[int]:
+    """The sides that decide `formula` near here: the lowest child of a min, and every child of a
+    max that could reach its value within `reach` (the most a side can change in the trust region)."""
+    if not isinstance(formula, Node):
+        return [formula]
+    levels = [float(_value(child, values)) for child in formula.children]
+    if formula.op == "min":
+        return _active(formula.children[int(np.argmin(levels))], values, reach)
+    top = max(levels)
+    return sorted({s for child, level in zip(formula.children, levels) if level >= top - reach
+                   for s in _active(child, values, reach)})
+
+
+def _value(formula, values: np.ndarray) -> float:
+    if not isinstance(formula, Node):
+        return values[formula]
+    levels = [_value(child, values) for child in formula.children]
+    return min(levels) if formula.op == "min" else max(levels)
+
+
+def _step(d: Descent) -> tuple[np.ndarray, float]:
+    """The step within the trust region and the box that minimises the linearised maximum of the
+    deciding sides, and the decrease of the formula that linearisation predicts."""
+    reach = 2.0 * d.radius * float(np.max(np.sum(np.abs(d.slopes), axis=1)))
+    active = _active(d.formula, d.values, reach)
+    low = np.maximum(-1.0 - d.u, -d.radius)
+    high = np.minimum(1.0 - d.u, d.radius)
+    values, slopes = d.values[active], d.slopes[active]
+    if len(active) == 1:  # one smooth side: each value to the end of the region that lowers it
+        p = np.where(slopes[0] > 0.0, low, np.where(slopes[0] < 0.0, high, 0.0))
+        return p, d.key - float(values[0] + slopes[0] @ p)
+    count = low.size
+    cost = np.zeros(count + 1)
+    cost[-1] = 1.0  # minimise t subject to value_s + slope_s . p <= t
+    result = linprog(cost, A_ub=np.column_stack([slopes, -np.ones(len(active))]), b_ub=-values,
+                     bounds=list(zip(low, high)) + [(None, None)], method="highs")
+    if not result.success:
+        return np.zeros(count), 0.0
+    return result.x[:count], d.key - float(result.x[-1])
 
 
 def _worst_starts(box: BoxPoints, jobs: list) -> list[np.ndarray]:
@@ -279,21 +322,24 @@ def _worst_starts(box: BoxPoints, jobs: list) -> list[np.ndarray]:
     return starts
 
 
-def _measure(box: BoxPoints, descents: list[Descent], at: list[np.ndarray]) -> None:
-    """Key and slope of every descent at its point `at` (in u), in one batch of (k + 1) rows each."""
+def _measure(box: BoxPoints, descents: list[Descent], at: list[np.ndarray], smallest: float) -> None:
+    """Keys and slopes of every descent's sides at its point `at` (in u): one batch of (k + 1) rows
+    each, forward differences with a step below the trust region (but not below `smallest`)."""
     k = len(box.tolerances)
-    rows = []
-    for u in at:
-        steps = np.where(u + STEP <= 1.0, STEP, -STEP)
+    rows, steps = [], []
+    for d, u in zip(descents, at):
+        h = min(STEP, max(d.radius / 8.0, smallest))
+        step = np.where(u + h <= 1.0, h, -h)
         base = u * box.fractions
-        rows += [base, *(base + np.diag(steps * box.fractions))]
+        rows += [base, *(base + np.diag(step * box.fractions))]
+        steps.append(step)
     batch = box.evaluate(np.array(rows))
-    for number, (d, u) in enumerate(zip(descents, at)):
-        keys = _formula_keys(d.search.split, d.formula, batch.side_keys(d.search.split))
-        keys = keys[number * (k + 1):(number + 1) * (k + 1)]
+    for number, (d, u, step) in enumerate(zip(descents, at, steps)):
+        keys = batch.side_keys(d.search.split)[:, number * (k + 1):(number + 1) * (k + 1)]
         keys = np.where(np.isfinite(keys), keys, -1e300)
-        steps = np.where(u + STEP <= 1.0, STEP, -STEP)
-        d.u, d.key, d.slope = u, float(keys[0]), (keys[1:] - keys[0]) / steps
+        d.u, d.values = u, keys[:, 0]
+        d.slopes = (keys[:, 1:] - keys[:, :1]) / step
+        d.key = float(_formula_keys(d.search.split, d.formula, keys[:, :1])[0])
 
 
 # --- confirmation by the ordinary solver ---------------------------------------------------
