@@ -33,7 +33,7 @@ from checker.analysis.boxpoints import BoxPoints, Solved
 from checker.analysis.montecarlo import unsolved
 from checker.analysis.sensitivity import RESOLUTION, Key, SideSwing, Target, outcomes_at, side_swings
 from checker.analysis.stacked import stack_point
-from checker.analysis.tolerances import Tolerance, corner_label, toleranced
+from checker.analysis.tolerances import MAX_CORNER_PARTS, Tolerance, corner_label, toleranced
 from checker.design import Design, Netlist, OperatingPoint
 from checker.errors import DesignError
 from checker.findings import Outcome
@@ -74,6 +74,8 @@ class TargetSearch:
     side_low: np.ndarray | None = None  # each side's lowest key over all vertices
     best_key: float = np.inf  # the check's lowest key seen at a vertex or corner
     proved: bool = False
+    phase: str = "vertices"  # how the box's corners were searched: "vertices" or "corner-search"
+    searched_inside: bool = False  # an interior descent ran for this target
 
     @property
     def split(self) -> Split:
@@ -111,6 +113,8 @@ def case_worst(netlist: Netlist, point: OperatingPoint, targets: Sequence[Target
     if len(tolerances) <= vertex_values:
         _vertices(box, searches)
     else:
+        for search in searches:
+            search.phase = "corner-search"
         _corner_search(box, searches, swings)
     _interior(box, searches)
     return {s.target.key: _confirmed(box, s, swings[s.target.key]) for s in searches}
@@ -264,6 +268,7 @@ def _interior(box: BoxPoints, searches: list[TargetSearch]) -> None:
                 d.radius = min(2.0 * d.radius, 2.0)
     for d in descents:
         d.search.candidates.append(Candidate(d.u * box.fractions, "interior"))
+        d.search.searched_inside = True
 
 
 def _active(formula, values: np.ndarray, reach: float) -> list[int]:
@@ -367,13 +372,12 @@ def _confirmed(box: BoxPoints, search: TargetSearch, swing: SideSwing) -> tuple[
         rank = _rank(outcome, split)
         if rank[0] < best_rank[0] - RESOLUTION * _size(outcome) or (rank[:2] < best_rank[:2] and rank[0] == best_rank[0]):
             best, best_rank, origin = outcome, rank, (candidate, result)
-    if origin is None:
-        method = "vertices" if search.proved else "interior"
+    if origin is None:  # nominal itself is the lowest: an interior point, if the interior was searched
+        method = "interior" if search.searched_inside else search.phase
         return replace(best, method=method, proved=search.proved), swing.drivers(deciding_side(search.split, box.nominal))
     candidate, result = origin
     drivers = swing.drivers(deciding_side(search.split, result))
-    order = [name for name, _ in drivers]
-    label = corner_label(_ordered(box, candidate.deviations, order))
+    label = _label(box, candidate.deviations, [name for name, _ in drivers])
     proved = search.proved and candidate.method == "vertices"
     return replace(best, corner=label, method=candidate.method, proved=proved,
                    point=_point(box, candidate.deviations)), drivers
@@ -395,12 +399,15 @@ def _point(box: BoxPoints, deviations: np.ndarray) -> tuple[tuple[str, float], .
     return tuple((t.name, float(d)) for t, d in zip(box.tolerances, deviations))
 
 
-def _ordered(box: BoxPoints, deviations: np.ndarray, order: list[str]) -> list[tuple[str, float]]:
-    """(value name, deviation) of the moved values, the drivers first, the rest in netlist order."""
-    rank = {name: i for i, name in enumerate(order)}
-    moved = [(t.name, float(d)) for t, d in zip(box.tolerances, deviations) if d != 0.0]
-    moved.sort(key=lambda entry: rank.get(entry[0], len(rank)))
-    return moved
+def _label(box: BoxPoints, deviations: np.ndarray, drivers: list[str]) -> str:
+    """The point in a few words: the moved values that drive the deciding side, largest first, and a
+    count of the rest (which move it less, or not at all); in netlist order when none drives it."""
+    moved = {t.name: float(d) for t, d in zip(box.tolerances, deviations) if d != 0.0}
+    leading = [(name, moved[name]) for name in drivers if name in moved][:MAX_CORNER_PARTS]
+    if not leading:
+        return corner_label(list(moved.items()))
+    rest = len(moved) - len(leading)
+    return corner_label(leading) + (f" and {rest} more" if rest > 0 else "")
 
 
 def deciding_side(split: Split, result: Solved) -> int:
