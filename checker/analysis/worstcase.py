@@ -349,10 +349,11 @@ def _measure(box: BoxPoints, descents: list[Descent], at: list[np.ndarray], smal
 
 # --- confirmation by the ordinary solver ---------------------------------------------------
 
-def _rank(outcome: Outcome, split: Split) -> tuple[float, bool, int]:
+def _rank(outcome: Outcome, split: Split) -> tuple[float, bool]:
+    """Lower is worse: the margin (relative where the check mixes units), then failing before holding."""
     if outcome.error:
-        return (-np.inf, False, 0)
-    return (outcome.relative if split.mixed_units else outcome.margin, outcome.holds, 0)
+        return (-np.inf, False)
+    return (outcome.relative if split.mixed_units else outcome.margin, outcome.holds)
 
 
 def _confirmed(box: BoxPoints, search: TargetSearch, swing: SideSwing) -> tuple[Outcome, Drivers]:
@@ -370,7 +371,8 @@ def _confirmed(box: BoxPoints, search: TargetSearch, swing: SideSwing) -> tuple[
         if outcome is None:
             continue
         rank = _rank(outcome, split)
-        if rank[0] < best_rank[0] - RESOLUTION * _size(outcome) or (rank[:2] < best_rank[:2] and rank[0] == best_rank[0]):
+        lower = rank[0] < best_rank[0] - RESOLUTION * _size(outcome) or (rank[0] == best_rank[0] and rank < best_rank)
+        if lower or (best.holds and not outcome.holds):  # a failing point always wins over a holding one
             best, best_rank, origin = outcome, rank, (candidate, result)
     if origin is None:  # nominal itself is the lowest: an interior point, if the interior was searched
         method = "interior" if search.searched_inside else search.phase
