@@ -58,20 +58,23 @@ class JointSolver:
                                       for part, (name, pins) in zip(self.netlist.parts, names)))
         return self._copies[number]
 
-    def solve(self, netlists: Sequence[Netlist]) -> list[Located | str]:
-        """Each netlist's operating point and block number there, or the message of why it has none."""
+    def solve(self, netlists: Sequence[Netlist], fallback: bool = True) -> list[Located | str]:
+        """Each netlist's operating point and block number there, or the message of why it has none.
+        Without `fallback`, a variant that Newton-Raphson cannot reach from the nominal point fails
+        at once instead of trying continuation (see `solve_cases`)."""
         if len(netlists) == 1:
             try:
-                return [(solve_cases(netlists, self.cache, [self.nominal])[0], -1)]
+                return [(solve_cases(netlists, self.cache, [self.nominal], fallback)[0], -1)]
             except NodegateError as error:
                 return [error.message]
         try:
-            joint = solve_cases([self.side_by_side(netlists)], self.cache, [_Guess(self.nominal, len(netlists))])[0]
+            joint = solve_cases([self.side_by_side(netlists)], self.cache, [_Guess(self.nominal, len(netlists))],
+                                fallback=False)[0]  # continuation on the whole may pick other branches
         except NodegateError:
             joint = None
-        if joint is None or joint.strategy not in ("newton", "linear"):  # continuation may pick other branches
+        if joint is None:
             half = len(netlists) // 2
-            return self.solve(netlists[:half]) + self.solve(netlists[half:])
+            return self.solve(netlists[:half], fallback) + self.solve(netlists[half:], fallback)
         return [(joint, number) for number in range(len(netlists))]
 
 

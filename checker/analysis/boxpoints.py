@@ -68,8 +68,10 @@ class BoxPoints:
     def netlist_at(self, deviations: np.ndarray) -> Netlist:
         return perturbed(self.netlist, {t.part: float(d) for t, d in zip(self.tolerances, deviations) if d != 0.0})
 
-    def evaluate(self, deviations: np.ndarray) -> Batch:
-        """The values at every row of `deviations` (points, values)."""
+    def evaluate(self, deviations: np.ndarray, fallback: bool = True) -> Batch:
+        """The values at every row of `deviations` (points, values). Without `fallback`, a nonlinear
+        point Newton-Raphson cannot reach from nominal counts as unsolved at once (for a search's trial
+        points: the search confirms its result with the full solver)."""
         deviations = np.atleast_2d(deviations)
         self.solves += len(deviations)
         if self.box is not None:
@@ -77,7 +79,7 @@ class BoxPoints:
         netlists = [self.netlist_at(row) for row in deviations]
         solved = []
         for start in range(0, len(netlists), BLOCKS):
-            solved += self.joint.solve(netlists[start:start + BLOCKS])
+            solved += self.joint.solve(netlists[start:start + BLOCKS], fallback)
         ok = np.array([not isinstance(s, str) for s in solved], bool)
         errors = {i: s for i, s in enumerate(solved) if isinstance(s, str)}
         good = [(s, n) for s, n in zip(solved, netlists) if not isinstance(s, str)]

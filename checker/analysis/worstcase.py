@@ -317,7 +317,7 @@ def _worst_starts(box: BoxPoints, jobs: list) -> list[np.ndarray]:
     rows = [c.deviations for search, _ in jobs for c in search.candidates]
     if not rows:
         return [np.zeros(len(box.tolerances)) for _ in jobs]
-    batch = box.evaluate(np.array(rows))
+    batch = box.evaluate(np.array(rows), fallback=False)
     starts, offset = [], 0
     for search, formula in jobs:
         count = len(search.candidates)
@@ -338,7 +338,7 @@ def _measure(box: BoxPoints, descents: list[Descent], at: list[np.ndarray], smal
         base = u * box.fractions
         rows += [base, *(base + np.diag(step * box.fractions))]
         steps.append(step)
-    batch = box.evaluate(np.array(rows))
+    batch = box.evaluate(np.array(rows), fallback=False)
     for number, (d, u, step) in enumerate(zip(descents, at, steps)):
         keys = batch.side_keys(d.search.split)[:, number * (k + 1):(number + 1) * (k + 1)]
         keys = np.where(np.isfinite(keys), keys, -1e300)

@@ -37,13 +37,16 @@ def solve(netlist: Netlist, cache: Cache | None = None) -> OperatingPoint:
 
 
 def solve_cases(netlists: Sequence[Netlist], cache: Cache | None = None,
-                guesses: Sequence[OperatingPoint | None] | None = None) -> list[OperatingPoint]:
+                guesses: Sequence[OperatingPoint | None] | None = None, fallback: bool = True) -> list[OperatingPoint]:
     """Operating points in the order given (results as if each netlist were solved alone).
 
     Every netlist is assembled and diagnosed, in order, before any is solved, so input
     errors come first. `cache` keeps topologies across calls; by default one per call.
     `guesses`, one per netlist (None for none), are where Newton-Raphson starts on the
-    nonlinear ones; linear netlists are solved directly and ignore them.
+    nonlinear ones; linear netlists are solved directly and ignore them. With `fallback` false,
+    a netlist whose Newton-Raphson from its guess does not converge is not retried from the first
+    guess with continuation: NoSolutionError at once (for a search's trial points, which the
+    search confirms with the full solver before it reports them).
     """
     cache = Cache() if cache is None else cache
     guesses = [None] * len(netlists) if guesses is None else list(guesses)
@@ -54,7 +57,7 @@ def solve_cases(netlists: Sequence[Netlist], cache: Cache | None = None,
     for position, (system, guess) in enumerate(zip(systems, guesses)):
         if system.nonlinear_devices:
             start = None if guess is None else warm_start(system, guess)
-            x, iterations, strategy = newton(system, start)
+            x, iterations, strategy = newton(system, start, fallback or guess is None)
             check_models(system, x)
             points[position] = operating_point(system, x, iterations, strategy)
     for group in groups:

@@ -184,13 +184,14 @@ def iterate(equations: Equations, x: np.ndarray, gmin: float, scale: float, budg
     return Run(x, budget, False)
 
 
-def newton(system: System, guess: np.ndarray | None = None) -> tuple[np.ndarray, int, str]:
+def newton(system: System, guess: np.ndarray | None = None, fallback: bool = True) -> tuple[np.ndarray, int, str]:
     """The unknowns at the operating point, the Newton iterations spent in all, and the strategy that worked.
 
     With `guess` (unknowns: V for nets, A for branches), plain Newton starts there
     first ("newton" when it converges); the iterations of a warm start that failed
     count in the total. Raises NoSolutionError naming the case, the strategies tried
-    and where the equations were furthest from balance, when none converges.
+    and where the equations were furthest from balance, when none converges; with a guess
+    and `fallback` false, as soon as the warm start fails.
     """
     equations = Equations(system)
     spent = 0
@@ -198,6 +199,8 @@ def newton(system: System, guess: np.ndarray | None = None) -> tuple[np.ndarray,
         warm = iterate(equations, guess, 0.0, 1.0, WARM_ITERATIONS)
         if warm.converged:
             return warm.x, warm.iterations, "newton"
+        if not fallback:  # the caller only wants points near the guess (a search's many trial points)
+            raise no_convergence(equations, warm.x)
         spent = warm.iterations
     start = equations.first_guess()
     plain = iterate(equations, start, 0.0, 1.0, MAX_ITERATIONS)
