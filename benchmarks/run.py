@@ -192,17 +192,15 @@ def counted_starts(warm: bool) -> Iterator[list[int]]:
     import checker.analysis.blocks
     import checker.analysis.boxpoints
     import checker.analysis.montecarlo
-    import checker.analysis.sensitivity
     spent: list[int] = []
 
-    def solve(netlists, cache=None, guesses=None):
-        points = solve_cases(netlists, cache, guesses if warm else None)
+    def solve(netlists, cache=None, guesses=None, fallback=True):
+        points = solve_cases(netlists, cache, guesses if warm else None, fallback)
         spent.extend(p.iterations for p in points if p.strategy != "linear")
         return points
     analysis = checker.analysis
-    saved = [(module, module.solve_cases) for module in (analysis.montecarlo, analysis.sensitivity,
-                                                         analysis.boxpoints, analysis.blocks)
-             if hasattr(module, "solve_cases")]  # the modules that solve perturbed boards
+    saved = [(module, module.solve_cases)  # the modules that solve perturbed boards
+             for module in (analysis.montecarlo, analysis.boxpoints, analysis.blocks)]
     for module, _ in saved:
         module.solve_cases = solve
     try:
