@@ -49,6 +49,14 @@ def _date(text: str) -> datetime.date:
         raise argparse.ArgumentTypeError(f"`{text}` is not a date like 2027-06-30") from None
 
 
+def _revision(text: str) -> str:
+    """A `--base` revision; an empty one (an unset CI variable) is refused, not taken as "no base",
+    so a comparison the workflow asked for is never silently skipped."""
+    if not text.strip():
+        raise argparse.ArgumentTypeError("is empty; name a git revision, or leave --base out")
+    return text
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="nodegate", description=(
         "Checks the DC operating points of circuit designs against the limits a hardware team writes."))
@@ -58,7 +66,7 @@ def build_parser() -> argparse.ArgumentParser:
     check = commands.add_parser("check", help="solve every circuit in every case, evaluate the limits, write reports")
     check.add_argument("directory", nargs="?", default=".", help="the hardware repository (default: .)")
     check.add_argument("--config", type=Path, help="the configuration file (default: DIR/nodegate.yaml)")
-    check.add_argument("--base", metavar="GIT_REF", help="compare against the same check on this git revision")
+    check.add_argument("--base", type=_revision, metavar="GIT_REF", help="compare against the same check on this git revision")
     check.add_argument("--fail-on", choices=("new", "any"), default="any",
                        help="with --base: fail on any failing limit (default) or only on those this change introduces")
     check.add_argument("--format", type=_formats, default=None, metavar="LIST",

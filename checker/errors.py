@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import difflib
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 
@@ -17,14 +17,28 @@ from pathlib import Path
 class Location:
     """A place in an input file; line and column are 1-based.
 
-    `source_line` may carry the text of the line when the file is not on disk
-    (text given in memory); otherwise `render` reads it from `path`.
+    `given_line` may carry the text of the line when the file is not on disk (text
+    given in memory). A location made while reading a file instead keeps `text`, the
+    whole text of that file shared by every location in it, and `line_start`, the
+    offset where its line starts: copying the line into each location made a 200 KB
+    one-line file of 100,000 values hold 20 GB. `source_line` cuts the line out only
+    when asked; without either, `render` reads it from `path`.
     """
 
     path: str
     line: int
     column: int = 1
-    source_line: str | None = None
+    given_line: str | None = field(default=None, repr=False, compare=False)
+    text: str | None = field(default=None, repr=False, compare=False)
+    line_start: int = field(default=0, repr=False, compare=False)
+
+    @property
+    def source_line(self) -> str | None:
+        """The text of the line (without its line end), or None when only `path` can tell."""
+        if self.given_line is not None or self.text is None:
+            return self.given_line
+        end = self.text.find("\n", self.line_start)
+        return self.text[self.line_start:end if end >= 0 else len(self.text)].rstrip("\r")
 
     def __str__(self) -> str:
         return f"{self.path}:{self.line}:{self.column}"
@@ -109,18 +123,35 @@ def _window(text: str, column: int) -> tuple[str, int]:
     return shown, column - start
 
 
+# The GitHub Actions runner reads every line of a step's output whose text, once leading
+# and trailing whitespace is stripped, starts with `::` as a workflow command (an
+# annotation, a masked value, a stopped command parser). Echoed input text is shown behind
+# this visible marker when it would read as one, so a pull request cannot forge one.
+COMMAND_MARKER = "| "
+
+
+def uncommanding(line: str) -> str:
+    """`line` behind COMMAND_MARKER when a CI runner would take it for a workflow command."""
+    return COMMAND_MARKER + line if line.strip().startswith("::") else line
+
+
 def render(error: NodegateError) -> str:
-    """`path:line:col: error: message`, then the source line and a caret under the column."""
+    """`path:line:col: error: message`, then the source line and a caret under the column.
+
+    No line starts a workflow command (see `uncommanding`): a file's path begins the first
+    line and its text the second, and both come from the pull request.
+    """
     loc = error.location
     if loc is None:
         lines = [f"nodegate: error: {printable(error.message)}"]
     else:
-        lines = [f"{printable(str(loc))}: error: {printable(error.message)}"]
+        lines = [uncommanding(f"{printable(str(loc))}: error: {printable(error.message)}")]
         text = _source_line(loc)
         if text is not None:
             shown, column = _window(printable(text).expandtabs(1), loc.column)
-            lines.append(f"  {shown}")
-            lines.append("  " + " " * max(column - 1, 0) + "^")
+            guarded = uncommanding(shown)
+            lines.append(f"  {guarded}")
+            lines.append("  " + " " * max(column - 1 + len(guarded) - len(shown), 0) + "^")
     lines.extend(f"  note: {printable(note)}" for note in error.notes)
     return "\n".join(lines)
 

@@ -9,8 +9,9 @@ are kelvin. The table follows LANGUAGE.md, "Part kinds (core)".
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Mapping
+from typing import Callable, Mapping
 
+from checker.errors import DesignError, Location
 from checker.units import (
     AMPERE, DIMENSIONLESS, FARAD, HENRY, KELVIN, OHM, VOLT, WATT, Dim, dim_div, dim_pow,
 )
@@ -32,11 +33,15 @@ class Prop:
     """A property: its dimension and, for `vf = 2.0 V at 10 mA`, the test condition's.
 
     `temperature` marks absolute temperatures (written in degC or K, stored in K).
+    `allowed` tells the values (SI) the property may take, and `rule` says which in words:
+    a value outside them would not fail a model but silently flatter a limit.
     """
 
     dim: Dim
     at: Dim | None = None
     temperature: bool = False
+    allowed: Callable[[float], bool] | None = None
+    rule: str = ""
 
 
 @dataclass(frozen=True)
@@ -70,11 +75,13 @@ class Kind:
 
 # Every part may carry these (LANGUAGE.md); `tag = WORD` is handled apart, as a word.
 COMMON_PROPS: dict[str, Prop] = {
-    "theta_ja": Prop(KELVIN_PER_WATT),
+    "theta_ja": Prop(KELVIN_PER_WATT, allowed=lambda value: value > 0.0,
+                     rule="is above 0 K/W: a junction is never colder than the air around it"),
     "tj_max": Prop(KELVIN, temperature=True),
 }
 
-_TOL = Prop(DIMENSIONLESS)
+# Checked in every mode, not only when tolerance analysis reads it (which also wants it below 100 %).
+_TOL = Prop(DIMENSIONLESS, allowed=lambda value: value >= 0.0, rule="is 0 % or more: a tolerance is a band's half-width")
 _DIODE_PROPS = {
     "isat": Prop(AMPERE), "ideality": Prop(DIMENSIONLESS), "rseries": Prop(OHM),
     "vf": Prop(VOLT, at=AMPERE), "vmax": Prop(VOLT), "imax": Prop(AMPERE),
@@ -110,3 +117,10 @@ KINDS: dict[str, Kind] = {k.name: k for k in (
          {"gain": Prop(DIMENSIONLESS), "swing": Prop(VOLT)}),
 )}
 
+
+
+def check_range(kind: Kind, name: str, value: float, location: Location | None) -> None:
+    """DesignError at `location` when `value` (SI) lies outside what property `name` of `kind` allows."""
+    spec = kind.prop(name)
+    if spec is not None and spec.allowed is not None and not spec.allowed(value):
+        raise DesignError(f"`{name}` {spec.rule}", location)

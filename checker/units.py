@@ -44,6 +44,9 @@ UNITS: dict[str, tuple[float, Dim]] = {
     "F": (1.0, FARAD), "H": (1.0, HENRY), "K": (1.0, KELVIN), "s": (1.0, SECOND),
     "%": (0.01, DIMENSIONLESS), "ppm": (1e-6, DIMENSIONLESS),
 }
+# The other code points of micro (Greek mu) and ohm (the ohm sign), as both languages accept
+# them (docs/language.md, Quantities): read as the spellings above.
+SPELLINGS = str.maketrans({"\u03bc": "\u00b5", "\u2126": "\u03a9"})
 # Units that take no prefix: `m%` or `kdegC` mean nothing.
 UNPREFIXED = {"%", "ppm", "degC"}
 
@@ -149,6 +152,15 @@ def format_value(value: float, symbol: str, digits: int = 3) -> str:
     return f"{scaled:.{decimals}f} {prefix}{symbol}".rstrip()
 
 
+def format_percent(fraction: float) -> str:
+    """A fraction as a percentage with one decimal, `-12.7 %`; beyond ±1e6 % in scientific notation,
+    `-6.26e+270 %`, so that an absurd design (a 1e-300 ohm resistor) prints a short line, not 300 digits."""
+    percent = fraction * 100
+    if math.isfinite(percent) and abs(percent) >= 1e6:
+        return f"{percent:.3g} %"
+    return f"{percent:.1f} %"
+
+
 def format_temperature(kelvin: float) -> str:
     """An absolute temperature in degrees Celsius: `85.0 °C`."""
     return f"{kelvin - ZERO_CELSIUS:.1f} °C"
@@ -159,7 +171,9 @@ def parse_unit(text: str) -> tuple[float, Dim, bool]:
 
     Factors are joined by `/` or `*`, each with an optional integer power `^N`.
     Raises ValueError with a short reason for anything else. `degC` stands only alone.
+    Greek mu and the ohm sign read as the micro sign and omega (SPELLINGS).
     """
+    text = text.translate(SPELLINGS)
     tokens = re.findall(r"([*/]?)([^*/^\s]+)(?:\^(-?\d+))?", text.replace(" ", ""))
     if not tokens or "".join(op + sym + (f"^{p}" if p else "") for op, sym, p in tokens) != text.replace(" ", ""):
         raise ValueError(f"`{text}` is not a unit")

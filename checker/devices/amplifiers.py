@@ -27,6 +27,7 @@ from checker.design import Part
 from checker.devices.base import Device, EdgeKind, Edges, NonlinearStamp, Triplets, prop_array, reject
 from checker.devices.power import SMOOTH_V
 from checker.devices.smooth import combine, smooth_max, smooth_min, stamp
+from checker.units import format_value
 
 SMOOTH_I = 1e-6  # A: width of the smooth corner where the output current changes rail
 
@@ -130,6 +131,14 @@ class Opamp(Device):
         rails = stamp(np.column_stack([hi, lo]), np.column_stack([into_hi, j - into_hi]), self.branch[:, None],
                       np.column_stack([d_hi, 1.0 - d_hi])[:, :, None])
         return combine(branch, rails)
+
+    def trouble(self, x: np.ndarray) -> list[tuple[Part, str]]:
+        """Op-amps whose rail_hi is not above rail_lo: the model would clamp the output to a range
+        turned inside out and report a state no part can be in."""
+        hi, lo = x[self.nodes[:, 3]], x[self.nodes[:, 4]]
+        return [(self.parts[k], f"{self.describe(self.parts[k])} has rail_hi at {format_value(hi[k], 'V')}, "
+                                f"not above rail_lo at {format_value(lo[k], 'V')}: check how its supply pins are wired")
+                for k in np.flatnonzero(~(hi > lo))]
 
     def pin_currents(self, x: np.ndarray) -> np.ndarray:
         j = x[self.branch]

@@ -11,7 +11,7 @@ from dataclasses import replace
 
 from checker.design import Netlist, Part
 from checker.errors import DesignError, UnitError, did_you_mean
-from checker.kinds import KINDS
+from checker.kinds import KINDS, check_range
 from checker.language.expressions import Scope, dim_text, evaluate
 from checker.language.parts import check_complete, primary_value, property_value
 from checker.language.syntax import Case, Override, declared
@@ -110,6 +110,10 @@ class _Case:
             self.parts[name] = replace(part, flags=frozenset({word}))
             return
         value, unit = primary_value(kind, override.value, self.scope)
+        if unit != part.value_unit:
+            raise UnitError(f"{kind.name} `{name}` is declared in {part.value_unit}; a case sets its value in the "
+                            f"same unit, not {unit}", override.value.location,
+                            ("a case cannot turn one part into another (a voltage source into a current source)",))
         self.parts[name] = replace(part, value=value, value_unit=unit)
 
     def set_property(self, name: str, override: Override) -> None:
@@ -118,6 +122,7 @@ class _Case:
         if key.text == "tag":
             raise DesignError("tags are fixed by the part; a case cannot change them", key.location)
         value, condition = property_value(kind, key, override.value, override.at, self.scope)
+        check_range(kind, key.text, value, override.value.location)
         at = {k: v for k, v in part.at.items() if k != key.text}
         if condition is not None:
             at[key.text] = condition

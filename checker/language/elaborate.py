@@ -11,7 +11,7 @@ from collections import ChainMap
 
 from checker.design import Design, Part
 from checker.errors import DesignError, Location, NodegateError, UnitError
-from checker.kinds import KINDS
+from checker.kinds import KINDS, Kind, check_range
 from checker.language.cases import netlists
 from checker.language.expressions import Scope, dim_text, evaluate
 from checker.language.parts import build_part, check_form, ordered_nets, unknown_kind
@@ -95,6 +95,15 @@ def _blocks(blocks: list[Block]) -> dict[str, Block]:
     return table
 
 
+def _in_range(statement: PartStatement, kind: Kind, part: Part) -> Part:
+    """`part`, once every property it was given lies in its kind's range (`checker.kinds`); the
+    error points at the value written, as a case override's does (`checker.language.cases`)."""
+    for prop in statement.props:
+        if prop.key is not None and prop.key.text in part.props:
+            check_range(kind, prop.key.text, part.props[prop.key.text], prop.value.location)
+    return part
+
+
 class _Expander:
     """Flattens part statements, expanding block instances recursively with prefixed names."""
 
@@ -119,7 +128,7 @@ class _Expander:
                 kind = KINDS[statement.kind.text]
                 check_form(statement, kind)
                 pins = self.nets(ordered_nets(statement, kind.pins, f"a {kind.name}"), prefix, ports)
-                parts.append(build_part(statement, kind, prefix + name, pins, scope))
+                parts.append(_in_range(statement, kind, build_part(statement, kind, prefix + name, pins, scope)))
                 self.counted(statement)
             else:
                 raise unknown_kind(statement.kind, self.blocks)

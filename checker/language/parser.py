@@ -22,13 +22,17 @@ _STATE = threading.local()  # per-parse memory of the post-lexer, read when repo
 
 
 class _Continuation:
-    """Drops line ends inside parentheses and after a trailing `,` (LANGUAGE.md, lexical rules) or `:`."""
+    """Drops line ends inside parentheses and after a trailing `,` (LANGUAGE.md, lexical rules) or `:`.
+
+    It also remembers, for error messages, the blocks whose `{` is not yet closed (each as its
+    `block` keyword and name) and the line a statement continues from, until that statement ends.
+    """
 
     always_accept = ("_NL",)
 
     def process(self, stream):
-        _STATE.open, _STATE.continued = [], None
-        previous = previous_token = None
+        _STATE.open, _STATE.continued, _STATE.blocks = [], None, []
+        previous = previous_token = heading = None
         for token in stream:
             if token.type == "LPAR":
                 _STATE.open.append(token)
@@ -41,8 +45,25 @@ class _Continuation:
                 if not _STATE.open:
                     _STATE.continued = previous_token
                 continue
+            heading = _block_heading(heading, previous_token, token)
             previous, previous_token = token.type, token
             yield token
+            if token.type == "_NL":  # the parser took the statement's end: its continuation is over
+                _STATE.continued = None
+
+
+def _block_heading(heading: tuple | None, previous: Token | None, token: Token) -> tuple | None:
+    """Follows `block NAME (...) {` and `}` into _STATE.blocks; returns the heading being read."""
+    if token.type == "BLOCK":
+        return (token, None)
+    if token.type == "NAME" and heading is not None and previous is heading[0]:
+        return (heading[0], token)
+    if token.type == "LBRACE" and heading is not None:
+        _STATE.blocks.append(heading)
+        return None
+    if token.type == "RBRACE" and _STATE.blocks:
+        _STATE.blocks.pop()
+    return heading
 
 
 _POSTLEX = _Continuation()
@@ -92,10 +113,13 @@ def parse_tree(source: Source) -> Tree:
 
 
 def _syntax_error(error: UnexpectedInput, source: Source) -> CircuitSyntaxError:
-    open_parens, continued = list(_STATE.open), _STATE.continued
+    open_parens, continued, blocks = list(_STATE.open), _STATE.continued, list(_STATE.blocks)
     location = _location(error, source)
     if open_parens and (_at_end(error) or location.line > open_parens[-1].line):
         return CircuitSyntaxError("this `(` is never closed", source.at(open_parens[-1]))
+    if blocks and _at_end(error):
+        return CircuitSyntaxError(f"{_block_text(blocks[-1])} is never closed: add `}}` on a line of its own "
+                                  "after its last statement", source.at(blocks[-1][0]))
     if isinstance(error, UnexpectedCharacters):
         return CircuitSyntaxError(_character_message(error), location)
     hint = _match_example(error)
@@ -103,7 +127,19 @@ def _syntax_error(error: UnexpectedInput, source: Source) -> CircuitSyntaxError:
     notes = ()
     if continued is not None and location.line > continued.line:
         notes = (f"line {continued.line} ends with `{continued.value}`, so the next line continues that statement",)
+    if blocks and source.lines[location.line - 1].split(maxsplit=1)[:1] in _NOT_IN_BLOCKS:
+        notes += (f"{_block_text(blocks[-1])} is still open here; a block holds only `let` and parts",)
     return CircuitSyntaxError(message, location, notes)
+
+
+# Statements that cannot stand inside a block: met there, the block above was most likely left open.
+_NOT_IN_BLOCKS = (["block"], ["case"], ["use"], ["circuit"], ["ground"])
+
+
+def _block_text(heading: tuple) -> str:
+    """`block `div` opened at line 4`, from the `block` keyword and its name (None if unread)."""
+    keyword, name = heading
+    return f"block `{name}` opened at line {keyword.line}" if name is not None else f"the block opened at line {keyword.line}"
 
 
 def _at_end(error: UnexpectedInput) -> bool:
@@ -134,13 +170,13 @@ def _character_message(error: UnexpectedCharacters) -> str:
 def _match_example(error: UnexpectedInput) -> str | None:
     if not isinstance(error, UnexpectedToken):
         return None
-    saved = (_STATE.open, _STATE.continued)
+    saved = (_STATE.open, _STATE.continued, _STATE.blocks)
     try:
         return error.match_examples(_PARSER.parse, _EXAMPLES, use_accepts=True)
     except Exception:  # a fixture that fails differently only means "no match"
         return None
     finally:
-        _STATE.open, _STATE.continued = saved
+        _STATE.open, _STATE.continued, _STATE.blocks = saved
 
 
 def _token_message(error: UnexpectedInput) -> str:

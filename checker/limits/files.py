@@ -166,7 +166,17 @@ def _cases(entry: LocatedDict) -> tuple[str, ...] | None:
     items = expect_list(entry["cases"], "`cases`", entry.value_location("cases"), LimitError)
     if not items:
         raise LimitError("`cases` lists at least one case; leave it out for every case", items.location)
-    return tuple(expect_text(item, "a case name", items.item_location(i), LimitError) for i, item in enumerate(items))
+    return _once_each(tuple(expect_text(item, "a case name", items.item_location(i), LimitError)
+                            for i, item in enumerate(items)))
+
+
+def _once_each(cases: tuple) -> tuple:
+    """The case names of `cases:`, each listed once: a repeated name is a slip (another case
+    was meant), which would otherwise pass unnoticed."""
+    for index, case in enumerate(cases):
+        if case in cases[:index]:
+            raise LimitError(f"case `{case}` is listed twice in `cases`", case.location)
+    return cases
 
 
 def unique_ids(limits: Iterable[Limit]) -> list[Limit]:

@@ -6,6 +6,7 @@ and a terminal.
 
 from __future__ import annotations
 
+from checker.errors import uncommanding
 from checker.findings import Findings
 from checker.report.view import NoteRow, Row, build_view
 
@@ -30,8 +31,9 @@ def _note_line(note: NoteRow) -> str:
 
 
 def _one_line(text: str) -> str:
-    """Names from input files stay on their line: control characters become spaces."""
-    return "".join(c if c.isprintable() else " " for c in text)
+    """Names from input files stay on their line (control characters become spaces), and no
+    line reads as a CI workflow command (`checker.errors.uncommanding`)."""
+    return uncommanding("".join(c if c.isprintable() else " " for c in text))
 
 
 def summary_lines(findings: Findings) -> list[str]:

@@ -17,11 +17,14 @@ Every circuit is diagnosed from its graph before factorising (see `diagnosis`).
 
 from __future__ import annotations
 
-from typing import Sequence
+import warnings
+from contextlib import contextmanager
+from typing import Iterator, Sequence
 
 import numpy as np
 
 from checker.design import Netlist, OperatingPoint
+from checker.errors import NoSolutionError
 from checker.solver.assembly import System, assemble, with_sources
 from checker.solver.diagnosis import diagnose
 from checker.solver.linear import Factor
@@ -57,16 +60,50 @@ def solve_cases(netlists: Sequence[Netlist], cache: Cache | None = None,
     for position, (system, guess) in enumerate(zip(systems, guesses)):
         if system.nonlinear_devices:
             start = None if guess is None else warm_start(system, guess)
-            x, iterations, strategy = newton(system, start, fallback or guess is None)
-            check_models(system, x)
-            points[position] = operating_point(system, x, iterations, strategy)
+            with _watched(system.netlist, strict=False):
+                x, iterations, strategy = newton(system, start, fallback or guess is None)
+                check_models(system, x)
+            with _watched(system.netlist):
+                points[position] = operating_point(system, x, iterations, strategy)
     for group in groups:
         if not group.system.nonlinear_devices:
-            factor = Factor(group.system.matrix, group.netlist)
-            solutions = factor.solve(np.column_stack([systems[m].rhs for m in group.members]))
+            with _watched(group.netlist):
+                factor = Factor(group.system.matrix, group.netlist)
+                solutions = factor.solve(np.column_stack([systems[m].rhs for m in group.members]))
             for column, position in enumerate(group.members):
-                points[position] = operating_point(systems[position], solutions[:, column], 1, "linear")
+                with _watched(netlists[position]):
+                    points[position] = operating_point(systems[position], solutions[:, column], 1, "linear")
     return points  # type: ignore[return-value]
+
+
+@contextmanager
+def _watched(netlist: Netlist, strict: bool = True) -> Iterator[None]:
+    """Floating-point overflow and invalid results met while solving `netlist`, kept off the terminal.
+
+    numpy would print them as warnings naming nodegate's own source files, which tell a board
+    designer nothing. They become located messages instead: a NoSolutionError notes them, and a
+    `strict` stage (assembling the equations, a direct solve, the results) that meets one is
+    itself a NoSolutionError, since its numbers would be infinite or undefined. Newton-Raphson's
+    iterations are not strict: a step whose residual is not finite is halved and retried.
+    """
+    met: set[str] = set()
+    with np.errstate(over="call", invalid="call", divide="call", under="ignore",
+                     call=lambda kind, _flag: met.add(kind)), warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # scipy's and numpy's warnings outside the floating-point flags
+        try:
+            yield
+        except NoSolutionError as error:
+            if not met:
+                raise
+            raise type(error)(error.message, error.location, (*error.notes, _arithmetic_note(met))) from None
+    if strict and met:
+        raise NoSolutionError(f"circuit `{netlist.circuit}` cannot be solved in floating point in case "
+                              f"`{netlist.case}`", netlist.case_location, (_arithmetic_note(met),))
+
+
+def _arithmetic_note(met: set[str]) -> str:
+    return (f"the arithmetic met {' and '.join(sorted(met))} while solving this case: "
+            "a value far out of range (such as 1e300 or 1e-300) is the likely cause")
 
 
 def _grouped(netlists: Sequence[Netlist], cache: Cache) -> tuple[list[Group], list[System]]:
@@ -78,13 +115,14 @@ def _grouped(netlists: Sequence[Netlist], cache: Cache) -> tuple[list[Group], li
         candidates = [group for group in groups if group.system.topology is topology]
         mark = signature(netlist, topology) if candidates else None
         group = next((g for g in candidates if g.admits(netlist, mark)), None)
-        if group is None:
-            system = assemble(netlist, topology)
-            diagnose(system)
-            group = Group(system, _signature=mark)
-            groups.append(group)
-        else:
-            system = with_sources(group.system, netlist)
+        with _watched(netlist):
+            if group is None:
+                system = assemble(netlist, topology)
+                diagnose(system)
+                group = Group(system, _signature=mark)
+                groups.append(group)
+            else:
+                system = with_sources(group.system, netlist)
         group.members.append(position)
         systems.append(system)
     return groups, systems

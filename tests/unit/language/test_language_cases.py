@@ -68,9 +68,10 @@ def test_language_case_flag_absent_and_hierarchical_targets():
     assert len(d.parts) == 8
 
 
-def test_language_case_source_can_become_current():
-    d = cases("case constant_current : VBAT = 100 mA\n")
-    assert d.netlists[0].part("VBAT").value_unit == "A"
+def test_language_case_keeps_a_source_in_its_unit():
+    # A case that turned a voltage source into a current source changed the part, silently (issue 9).
+    with pytest.raises(UnitError, match="declared in V"):
+        cases("case constant_current : VBAT = 100 mA\n")
 
 
 @pytest.mark.parametrize("text, cls, position, words", [

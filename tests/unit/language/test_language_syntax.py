@@ -34,7 +34,7 @@ def syntax_error(text: str) -> CircuitSyntaxError:
     ("bjt Q (c: a, b: b, e c)\n", (3, 22), "`PIN: NET`"),
     ("block b (p) {}\n", (3, 14), "`{` ends its line"),
     ("let = 1\n", (3, 5), "expected a name"),
-    ("block b (p) {\n  resistor R from p to gnd : 1 ohm\n", (4, 35), "end of the file"),
+    ("block b (p) {\n  resistor R from p to gnd : 1 ohm\n", (3, 1), "block `b` opened at line 3 is never closed"),
     ("block b (p) { resistor R from p to gnd : 1 ohm }\n", (3, 15), "`{` ends its line"),
     ("let x = " + "(" * 40 + "1" + ")" * 40 + "\n", (3, 41), "nested more than 32"),
 ])
