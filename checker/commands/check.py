@@ -15,6 +15,7 @@ from checker.repo.config import Config, find_config, load_config
 from checker.repo.git import repo_location, revision_checkout
 from checker.report import summary_lines, write_reports
 from checker.report.annotations import render_annotations
+from checker.report.writer import stoppable
 
 DEFAULT_FORMATS = ("md", "html", "json")
 FILE_NAMES = {"md": "report.md", "html": "report.html", "json": "report.json",
@@ -22,6 +23,12 @@ FILE_NAMES = {"md": "report.md", "html": "report.html", "json": "report.json",
 
 
 def run(args: argparse.Namespace) -> int:
+    """The check; SIGTERM or SIGINT end it with 128 + the signal's number, leaving no temporary
+    file or base-revision tree behind and the previous reports as they were (`stoppable`)."""
+    return stoppable(lambda: _check(args))
+
+
+def _check(args: argparse.Namespace) -> int:
     config = load_config(find_config(Path(args.directory), args.config))
     today = args.as_of or datetime.date.today()
     findings = run_check(config, today, _progress())

@@ -1,15 +1,20 @@
 """`nodegate init [DIR]`: a starter configuration, example circuit, limits and CI workflow.
 
-Writes nothing if any of the files already exists: a starter must never overwrite work.
+Writes nothing if anything already stands at one of the starter paths, a dangling
+symbolic link included: a starter must never overwrite work, nor write through a link.
+The files are written as one set by the safe writer (`checker.report.writer.write_set`),
+anchored at DIR: folders inside DIR that are links are refused too.
 """
 
 from __future__ import annotations
 
 import argparse
+import os
 from importlib import resources
 from pathlib import Path
 
 from checker.errors import ConfigError
+from checker.report.writer import Planned, stoppable, write_set
 
 STARTER_FILES = (
     "nodegate.yaml",
@@ -20,25 +25,21 @@ STARTER_FILES = (
 
 
 def run(args: argparse.Namespace) -> int:
+    return stoppable(lambda: _init(args))
+
+
+def _init(args: argparse.Namespace) -> int:
     target: Path = args.directory
     if target.exists() and not target.is_dir():
         raise ConfigError(f"`{target}` is a file; `nodegate init` needs a folder")
-    existing = [name for name in STARTER_FILES if (target / name).exists()]
+    existing = [name for name in STARTER_FILES if os.path.lexists(target / name)]
     if existing:
         raise ConfigError(f"`nodegate init` never overwrites; already present in {target}: {', '.join(existing)}")
     starter = resources.files("checker") / "starter"
-    written: list[Path] = []
-    try:
-        for name in STARTER_FILES:
-            destination = target / name
-            destination.parent.mkdir(parents=True, exist_ok=True)
-            destination.write_text((starter / name).read_text(encoding="utf-8"), encoding="utf-8")
-            written.append(destination)
-    except OSError as error:
-        for path in written:  # all or nothing: a half-written starter would confuse the next `init`
-            path.unlink(missing_ok=True)
-        raise ConfigError(f"cannot write the starter into `{target}`: {error.strerror or error}") from None
-    for path in written:
-        print(f"wrote {path}")
+    anchor = Path(os.path.abspath(target))
+    write_set([Planned(anchor, anchor / name, (starter / name).read_text(encoding="utf-8"))
+               for name in STARTER_FILES])
+    for name in STARTER_FILES:
+        print(f"wrote {target / name}")
     print(f"next: nodegate check {target}")
     return 0

@@ -8,10 +8,12 @@ limit paths are relative to the configuration file and must stay inside its fold
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from checker.errors import ConfigError, Location, shown_path
+from checker.report.writer import EXTENSIONS, HEAD_BYTES, is_report
 from checker.yamlsource import (
     LocatedDict, LocatedStr, check_keys, expect_list, expect_mapping, expect_text, load_yaml,
 )
@@ -22,7 +24,6 @@ MAX_VERTEX_VALUES = 20  # worst-case: 1,048,576 vertices per case, the most a co
 TOLERANCE_MODES = ("nominal", "worst-case", "monte-carlo")
 CONFIG_NAMES = ("nodegate.yaml", "nodegate.yml")  # looked for in this order
 REPORT_FORMAT = {"markdown": "md", "html": "html", "json": "json", "junit": "junit", "sarif": "sarif"}  # key -> format
-INPUT_SUFFIXES = (".circuit", ".yaml", ".yml")
 MAX_CIRCUITS = 1000
 MAX_SAMPLES = 1_000_000
 
@@ -203,30 +204,69 @@ def _reports(value: object, root: Path, data: LocatedDict) -> dict[str, Path]:
     reports: dict[str, Path] = {}
     for key in section:
         text = expect_text(section[key], f"`report.{key}`", section.value_location(key))
-        path = _inside(root, text, text.location, "report path")
-        _writable_report(path, root, text, reports)
+        path = _report_path(root, text)
+        _not_taken(path, text, reports)
+        _writable_report(path, root, text, REPORT_FORMAT[key])
         reports[REPORT_FORMAT[key]] = path
     return reports
 
 
-def _writable_report(path: Path, root: Path, text: LocatedStr, taken: dict[str, Path]) -> None:
+def _report_path(root: Path, text: LocatedStr) -> Path:
+    """`text` relative to `root`, normalised as written (links are not followed: the writer refuses them)."""
+    if "\0" in text:
+        raise ConfigError("report path contains a NUL character", text.location)
+    if Path(text).is_absolute():
+        raise ConfigError(f"report path `{text}` must be relative to the configuration file", text.location)
+    path = Path(os.path.normpath(root / text))
+    if path != root and root not in path.parents:
+        raise ConfigError(f"report path `{text}` is outside the repository (the configuration's folder)",
+                          text.location)
+    return path
+
+
+def _writable_report(path: Path, root: Path, text: LocatedStr, fmt: str) -> None:
     """Refuse report paths that would overwrite the repository's own files instead of a report.
 
-    A configuration arrives in pull requests from anyone: a report path must not name
-    the repository itself, a folder, anything under `.git`, an input file (circuits,
-    libraries, limits and this configuration all end in `.circuit`, `.yaml` or `.yml`),
-    or the file another format is written to.
+    A configuration arrives in pull requests from anyone, so a report path must end in
+    its format's extension, must not lie under `.git` nor go through a file or a
+    symbolic link, and may name an existing file only when that file is a report of
+    the same format that nodegate wrote before (its first bytes say so): a README,
+    a setup file or an input is never replaced.
     """
-    if path == root or path.is_dir():
-        raise ConfigError(f"report path `{text}` is a folder; name the report file", text.location)
-    blocked = next((p for p in path.parents if p.exists() and not p.is_dir()), None)
-    if blocked is not None:
-        raise ConfigError(f"report path `{text}` goes through `{blocked.name}`, which is a file", text.location)
+    where = text.location
+    if path == root or path.is_dir() and not path.is_symlink():
+        raise ConfigError(f"report path `{text}` is a folder; name the report file", where)
     if ".git" in path.relative_to(root).parts:
-        raise ConfigError(f"report path `{text}` is inside `.git`", text.location)
-    if path.suffix.lower() in INPUT_SUFFIXES:
-        raise ConfigError(f"report path `{text}` would overwrite an input file (`{path.suffix}`)", text.location,
-                          ("reports end in .md, .html, .json, .xml or .sarif",))
+        raise ConfigError(f"report path `{text}` is inside `.git`", where)
+    if path.suffix.lower() != EXTENSIONS[fmt]:
+        raise ConfigError(f"report path `{text}` must end in `{EXTENSIONS[fmt]}`", where,
+                          (f"the {fmt} report is written only to a file of its own kind",))
+    step = root
+    for name in path.relative_to(root).parts:
+        step = step / name
+        if step.is_symlink():
+            raise ConfigError(f"report path `{text}` goes through `{step.relative_to(root)}`, "
+                              "which is a symbolic link", where)
+        if step != path and step.exists() and not step.is_dir():
+            raise ConfigError(f"report path `{text}` goes through `{step.name}`, which is a file", where)
+    if path.exists() and not _earlier_report(path, fmt):
+        raise ConfigError(f"report path `{text}` names an existing file that is not a nodegate {fmt} report",
+                          where, ("nodegate replaces only reports it wrote itself",))
+
+
+def _earlier_report(path: Path, fmt: str) -> bool:
+    """Whether `path` is a regular file that starts as the `fmt` renderer writes."""
+    if not path.is_file():
+        return False
+    try:
+        with open(path, "rb") as handle:
+            return is_report(fmt)(handle.read(HEAD_BYTES))
+    except OSError:
+        return False
+
+
+def _not_taken(path: Path, text: LocatedStr, taken: dict[str, Path]) -> None:
+    """Two formats written to one path would leave only the last."""
     for fmt, other in taken.items():
         if other == path:
             key = next(k for k, v in REPORT_FORMAT.items() if v == fmt)

@@ -23,6 +23,7 @@ from collections.abc import Iterator
 from pathlib import Path
 
 from checker.errors import ConfigError
+from checker.report.writer import signals_held
 
 GIT_TIMEOUT = 30.0  # s, for quick queries (rev-parse)
 ARCHIVE_TIMEOUT = 300.0  # s, for writing the archive of a whole revision
@@ -133,9 +134,11 @@ def materialize_revision(repo_root: Path, ref: str, dest: Path) -> Path:
     commit = resolve_commit(top, ref)
     dest = Path(dest)
     dest.mkdir(parents=True, exist_ok=True)
-    handle, name = tempfile.mkstemp(prefix="nodegate-base-", suffix=".tar")
-    os.close(handle)
+    name = None
     try:
+        with signals_held():  # a stop between creating and naming the file would leave it behind
+            handle, name = tempfile.mkstemp(prefix="nodegate-base-", suffix=".tar")
+            os.close(handle)
         try:
             _git(["archive", "--format=tar", f"--output={name}", commit], top, ARCHIVE_TIMEOUT)
         except _GitFailed as error:
@@ -143,12 +146,25 @@ def materialize_revision(repo_root: Path, ref: str, dest: Path) -> Path:
                               notes=(error.message,)) from error
         extract_tar(Path(name), dest)
     finally:
-        os.unlink(name)
+        if name is not None:
+            os.unlink(name)
     return dest / prefix if prefix else dest
 
 
 @contextlib.contextmanager
 def revision_checkout(repo_root: Path, ref: str) -> Iterator[Path]:
-    """Yield the folder matching `repo_root` in a temporary copy of revision `ref`; remove it afterwards."""
-    with tempfile.TemporaryDirectory(prefix="nodegate-base-") as folder:
-        yield materialize_revision(repo_root, ref, Path(folder))
+    """Yield the folder matching `repo_root` in a temporary copy of revision `ref`; remove it afterwards.
+
+    The copy is a whole revision, so it is removed on every exit, a SIGTERM or SIGINT
+    included (`checker.report.writer.stoppable` turns them into exceptions); creating
+    and removing it run with those signals held, so neither can be cut in half.
+    """
+    tree = None
+    try:
+        with signals_held():
+            tree = tempfile.TemporaryDirectory(prefix="nodegate-base-")
+        yield materialize_revision(repo_root, ref, Path(tree.name))
+    finally:
+        if tree is not None:
+            with signals_held():
+                tree.cleanup()
