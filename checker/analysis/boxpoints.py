@@ -17,10 +17,11 @@ import numpy as np
 
 from checker.analysis.linearbox import LinearBox
 from checker.analysis.blocks import JointSolver
-from checker.analysis.stacked import Stacked, stack_points
+from checker.analysis.stacked import PointView, Stacked, stack_points
 from checker.analysis.tolerances import Tolerance, perturbed
 from checker.design import Netlist, OperatingPoint
 from checker.errors import NodegateError
+from checker.limits.engine import CompiledItem
 from checker.limits.sides import Split
 from checker.solver import Cache, solve_cases
 
@@ -43,6 +44,19 @@ class Batch:
             margins = split.margins(self.values)
             keys[:, self.ok] = split.keys(self.values, margins)
         return keys
+
+    def check_keys(self, item: CompiledItem) -> np.ndarray:
+        """The rules' own ranking key of the whole check at every point (its relative margin; the
+        check mixes units), one scalar evaluation per point; −inf where there is no operating point
+        or the check has no value (a division by zero, say)."""
+        keys = np.full(self.ok.size, -np.inf)
+        rows = np.flatnonzero(self.ok)
+        for position, row in enumerate(rows):
+            try:
+                keys[row] = item.check(PointView(self.values, position)).relative
+            except (NodegateError, ArithmeticError, ValueError):
+                keys[row] = -np.inf
+        return np.where(np.isnan(keys), -np.inf, keys)
 
     def side_margins(self, split: Split) -> np.ndarray:
         margins = np.full((len(split.sides), self.ok.size), -np.inf)

@@ -117,3 +117,40 @@ def _runs(solved: Sequence[Located]) -> list[tuple[OperatingPoint, np.ndarray]]:
 def stack_point(point: OperatingPoint) -> Stacked:
     """One operating point as a stack of one."""
     return stack_points([(point, -1)], [point.netlist])
+
+
+class PointView:
+    """Point `index` of a Stacked as the scalar closures of a compiled check read it (a CaseValues
+    look-alike): for checks whose ranking the side formula cannot reproduce (mixed units)."""
+
+    def __init__(self, stacked: Stacked, index: int):
+        self.case, self.ambient = stacked.case, stacked.ambient
+        pick = _picker(index)
+        self.nets = _Mapped(stacked.nets, pick)
+        self.results = _Mapped(stacked.results, lambda r: _ScalarResult(r, pick))
+        self.parts = _Mapped(stacked.parts, lambda p: PartValues(pick(p.value), {k: pick(v) for k, v in p.props.items()}))
+
+
+def _picker(index: int) -> Callable:
+    return lambda array: float(array[index]) if np.ndim(array) else array
+
+
+class _Mapped:
+    """A read-only view of a mapping with every value passed through `convert`."""
+
+    def __init__(self, source: Mapping, convert: Callable):
+        self._source, self._convert = source, convert
+
+    def __getitem__(self, name: str):
+        return self._convert(self._source[name])
+
+    def __contains__(self, name: object) -> bool:
+        return name in self._source
+
+
+class _ScalarResult:
+    def __init__(self, arrays: PartArrays, pick: Callable):
+        self.power = pick(arrays.power)
+        self.pins = {pin: pick(current) for pin, current in arrays.pins.items()}
+        self.voltage = None if arrays.voltage is None else pick(arrays.voltage)
+        self.current = None if arrays.current is None else pick(arrays.current)

@@ -31,11 +31,12 @@ from scipy.optimize import linprog
 
 from checker.analysis.boxpoints import BoxPoints, Solved
 from checker.analysis.montecarlo import unsolved
+from checker.analysis.points import format_point
 from checker.analysis.sensitivity import RESOLUTION, Key, SideSwing, Target, outcomes_at, side_swings
 from checker.analysis.stacked import stack_point
 from checker.analysis.tolerances import MAX_CORNER_PARTS, Tolerance, corner_label, toleranced
 from checker.design import Design, Netlist, OperatingPoint
-from checker.errors import DesignError
+from checker.errors import DesignError, LimitError
 from checker.findings import Outcome
 from checker.limits.sides import Node, Split
 from checker.solver import Cache
@@ -140,7 +141,7 @@ def _vertices(box: BoxPoints, searches: list[TargetSearch]) -> None:
         batch = box.evaluate(rows)
         for search in searches:
             keys = batch.side_keys(search.split)
-            combined = search.split.combine(keys)
+            combined = _combined(search, batch, keys)
             i = _first_lowest(combined)
             if combined[i] < best.get(id(search), (np.inf,))[0] - _noise(combined[i]):
                 best[id(search)] = (float(combined[i]), rows[i])
@@ -154,9 +155,17 @@ def _vertices(box: BoxPoints, searches: list[TargetSearch]) -> None:
         search.best_key = key
         search.candidates.append(Candidate(row, "vertices"))
         search.candidates += [Candidate(r, "vertices") for r in side_best[id(search)] if r is not None]
-        monotone = box.linear and all(side.monotone for side in search.split.sides)
+        monotone = box.linear and not search.split.mixed_units and all(side.monotone for side in search.split.sides)
         bound = search.split.lower_bound(search.side_low)
         search.proved = monotone and (search.split.conjunctive or bound >= key - _noise(key))
+
+
+def _combined(search: TargetSearch, batch, side_keys: np.ndarray) -> np.ndarray:
+    """The check's ranking key at every point of a batch: the side formula, or where the check mixes
+    units (whose rules rank by relative margin at each comparison's nearer end) the rules themselves."""
+    if search.split.mixed_units:
+        return batch.check_keys(search.target.item)
+    return search.split.combine(side_keys)
 
 
 def _noise(key: float) -> float:
@@ -180,8 +189,8 @@ def _corner_search(box: BoxPoints, searches: list[TargetSearch], swings: dict[Ke
             signs = np.where(swing.up[side] < swing.down[side], 1.0, -1.0)
             row = _stable_corner(box, search.split, side, signs)
             search.candidates.append(Candidate(row, "corner-search"))
-        keys = box.evaluate(np.array([c.deviations for c in search.candidates])).side_keys(search.split)
-        search.best_key = float(search.split.combine(keys).min())
+        batch = box.evaluate(np.array([c.deviations for c in search.candidates]))
+        search.best_key = float(_combined(search, batch, batch.side_keys(search.split)).min())
 
 
 def _stable_corner(box: BoxPoints, split: Split, side: int, signs: np.ndarray) -> np.ndarray:
@@ -190,8 +199,8 @@ def _stable_corner(box: BoxPoints, split: Split, side: int, signs: np.ndarray) -
         corner = signs * box.fractions
         inward = corner - np.diag(signs * box.fractions * STEP)  # each value a step into the box
         keys = box.evaluate(np.vstack([corner, inward])).side_keys(split)[side]
-        slope = (keys[1:] - keys[0]) * signs  # > 0: moving out along the sign raises the margin
-        flip = np.isfinite(slope) & (slope > RESOLUTION * max(abs(keys[0]), 1e-300) * STEP)
+        drop = keys[0] - keys[1:]  # > 0: a step inward lowers the side, so the other end is lower
+        flip = np.isfinite(drop) & (drop > RESOLUTION * max(abs(keys[0]), 1e-300) * STEP)
         if not flip.any() or not np.isfinite(keys[0]):
             break
         signs = np.where(flip, -signs, signs)
@@ -238,7 +247,8 @@ def _interior(box: BoxPoints, searches: list[TargetSearch]) -> None:
     nominal; the closest targets first.
     """
     pending = sorted((s for s in searches if not s.proved), key=lambda s: s.best_key)
-    jobs = [(search, formula) for search in pending for formula in _conjuncts(search.split.tree)]
+    jobs = [(search, formula) for search in pending
+            for formula in ([search.split.tree] if search.split.mixed_units else _conjuncts(search.split.tree))]
     if not jobs:
         return
     k = len(box.tolerances)
@@ -321,10 +331,19 @@ def _worst_starts(box: BoxPoints, jobs: list) -> list[np.ndarray]:
     starts, offset = [], 0
     for search, formula in jobs:
         count = len(search.candidates)
-        keys = _formula_keys(search.split, formula, batch.side_keys(search.split))[offset:offset + count]
+        keys = _job_keys(search, formula, batch)[offset:offset + count]
         starts.append(search.candidates[int(np.argmin(keys))].deviations if count else np.zeros(len(box.tolerances)))
         offset += count
     return starts
+
+
+def _job_keys(search: TargetSearch, formula, batch, rows: slice = slice(None)) -> np.ndarray:
+    """A descent's objective at the batch's points: its formula of the sides, or for a check that
+    mixes units the rules' own ranking of the whole check."""
+    if search.split.mixed_units:
+        return _combined(search, batch, np.empty(0))[rows]
+    key = _formula_keys(search.split, formula, batch.side_keys(search.split)[:, rows])
+    return np.where(np.isfinite(key), key, -1e300)
 
 
 def _measure(box: BoxPoints, descents: list[Descent], at: list[np.ndarray], smallest: float) -> None:
@@ -340,11 +359,13 @@ def _measure(box: BoxPoints, descents: list[Descent], at: list[np.ndarray], smal
         steps.append(step)
     batch = box.evaluate(np.array(rows), fallback=False)
     for number, (d, u, step) in enumerate(zip(descents, at, steps)):
-        keys = batch.side_keys(d.search.split)[:, number * (k + 1):(number + 1) * (k + 1)]
+        rows = slice(number * (k + 1), (number + 1) * (k + 1))
+        keys = batch.side_keys(d.search.split)[:, rows]
         keys = np.where(np.isfinite(keys), keys, -1e300)
         d.u, d.values = u, keys[:, 0]
-        d.slopes = (keys[:, 1:] - keys[:, :1]) / step
-        d.key = float(_formula_keys(d.search.split, d.formula, keys[:, :1])[0])
+        with np.errstate(all="ignore"):  # a trial point without a solution (key −1e300) gives a huge slope
+            d.slopes = np.nan_to_num((keys[:, 1:] - keys[:, :1]) / step, nan=0.0, posinf=1e300, neginf=-1e300)
+        d.key = float(_job_keys(d.search, d.formula, batch, rows)[0])
 
 
 # --- confirmation by the ordinary solver ---------------------------------------------------
@@ -367,11 +388,17 @@ def _confirmed(box: BoxPoints, search: TargetSearch, swing: SideSwing) -> tuple[
     best = replace(search.nominal, corner=NOMINAL, point=_point(box, np.zeros(len(box.tolerances))))
     best_rank, origin = _rank(best, split), None
     for candidate, result in zip(candidates, solved):
-        outcome = _outcome_at(target, search.nominal, result)
+        try:
+            outcome = _outcome_at(target, search.nominal, result)
+        except LimitError as error:  # e.g. a division by zero that only this point of the box meets
+            point = format_point(_point(box, candidate.deviations))
+            raise LimitError(error.message, error.location,
+                             error.notes + (f"at the worst-case point `--at {point}` ({candidate.method})",)) from None
         if outcome is None:
             continue
         rank = _rank(outcome, split)
-        lower = rank[0] < best_rank[0] - RESOLUTION * _size(outcome) or (rank[0] == best_rank[0] and rank < best_rank)
+        noise = RESOLUTION * (1.0 if split.mixed_units else _size(outcome))  # relative margins are already scaled
+        lower = rank[0] < best_rank[0] - noise or (rank[0] == best_rank[0] and rank < best_rank)
         if lower or (best.holds and not outcome.holds):  # a failing point always wins over a holding one
             best, best_rank, origin = outcome, rank, (candidate, result)
     if origin is None:  # nominal itself is the lowest: an interior point, if the interior was searched
