@@ -10,27 +10,26 @@ from report_bike_light import bike_light
 
 import checker.report.writer as writer
 from checker.errors import NodegateError
-from checker.files import write_atomic
 from checker.report import render_json, write_reports
 
 
-def test_write_atomic_creates_folders_and_leaves_no_temporary(tmp_path):
+def test_write_set_creates_folders_and_leaves_no_temporary(tmp_path):
     target = tmp_path / "deep" / "er" / "report.md"
-    write_atomic(target, "µ Ω °C\n")
+    writer.write_set([writer.Planned(tmp_path, target, "µ Ω °C\n")])
     assert target.read_text(encoding="utf-8") == "µ Ω °C\n"
-    write_atomic(target, "second\r\n")
+    writer.write_set([writer.Planned(tmp_path, target, "second\r\n", replaces=lambda head: True)])
     assert target.read_bytes() == b"second\r\n"  # newlines written as given
     assert os.listdir(target.parent) == ["report.md"]
 
 
 def test_unwritable_target_is_an_input_error(tmp_path):
     (tmp_path / "taken").write_text("a file, not a folder")
-    with pytest.raises(NodegateError, match="cannot write `"):
-        write_atomic(tmp_path / "taken" / "report.md", "x")
+    with pytest.raises(NodegateError):
+        writer.write_set([writer.Planned(tmp_path, tmp_path / "taken" / "report.md", "x")])
     folder = tmp_path / "folder.md"
     folder.mkdir()
-    with pytest.raises(NodegateError, match="cannot write `"):
-        write_atomic(folder, "x")
+    with pytest.raises(NodegateError):
+        writer.write_set([writer.Planned(tmp_path, folder, "x", replaces=lambda head: True)])
     assert sorted(os.listdir(tmp_path)) == ["folder.md", "taken"]  # no temporary left behind
     assert not list(folder.iterdir())
 
