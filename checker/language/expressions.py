@@ -17,7 +17,7 @@ from lark import Tree
 from checker.errors import DesignError, Location, UnitError, did_you_mean
 from checker.language.syntax import Expr
 from checker.units import (
-    DIMENSIONLESS, PREFIXES, UNITS, UNPREFIXED, Quantity, dim_div, dim_mul, dim_name, dim_pow, quantity,
+    DIMENSIONLESS, PREFIXES, SPELLINGS, UNITS, UNPREFIXED, Quantity, dim_div, dim_mul, dim_name, dim_pow, quantity,
 )
 
 MAX_DEPTH = 100  # operators nested in one expression; deeper is an error, never a RecursionError
@@ -25,7 +25,6 @@ MAX_DEPTH = 100  # operators nested in one expression; deeper is an error, never
 Scope = Mapping[str, Quantity]
 
 # Other spellings of the micro sign and the ohm sign (NFKC equivalents) -> units.py's.
-_SPELLINGS = str.maketrans({"\u03bc": "\u00b5", "\u2126": "\u03a9"})
 _FUNCTIONS = ("abs", "max", "min", "sqrt")
 _ALL_UNITS = sorted({*UNITS, "degC"} | {p + u for p in PREFIXES for u in UNITS if u not in UNPREFIXED})
 
@@ -67,7 +66,7 @@ class _Evaluator:
 
     def quantity(self, node: Tree, sign: float = 1.0) -> Quantity:
         number, unit = node.children
-        symbol = "" if unit is None else str(unit).translate(_SPELLINGS)
+        symbol = "" if unit is None else str(unit).translate(SPELLINGS)
         try:
             return quantity(sign * float(number), symbol)
         except ValueError as error:

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 from checker.analysis.points import reproduce_command
 from checker.analysis.tolerances import percent
 from checker.findings import Analysis, Finding, Findings, Outcome, Waiver, WaiverNote
-from checker.units import format_temperature, format_value
+from checker.units import format_percent, format_temperature, format_value
 
 CAUTION = ("nodegate supports, and does not replace, a qualified engineer's review "
            "and the applicable codes and standards.")
@@ -56,7 +56,7 @@ def format_base_margin(margin: float, unit: str, absolute: bool = False) -> str:
 
 def format_relative(relative: float) -> str:
     """The margin over the limit's scale, as a percentage with one decimal."""
-    return f"{relative * 100:.1f} %" if math.isfinite(relative) else NO_TEXT
+    return format_percent(relative) if math.isfinite(relative) else NO_TEXT
 
 
 def format_fraction(fraction: float | None) -> str:
