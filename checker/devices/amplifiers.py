@@ -133,12 +133,13 @@ class Opamp(Device):
         return combine(branch, rails)
 
     def trouble(self, x: np.ndarray) -> list[tuple[Part, str]]:
-        """Op-amps whose rail_hi is not above rail_lo: the model would clamp the output to a range
-        turned inside out and report a state no part can be in."""
+        """Op-amps whose rail_hi is below rail_lo: the model would clamp the output to a range
+        turned inside out and report a state no part can be in. Equal rails (an unpowered part,
+        say in a case with its supply absent) hold the output at that voltage, which is real."""
         hi, lo = x[self.nodes[:, 3]], x[self.nodes[:, 4]]
         return [(self.parts[k], f"{self.describe(self.parts[k])} has rail_hi at {format_value(hi[k], 'V')}, "
-                                f"not above rail_lo at {format_value(lo[k], 'V')}: check how its supply pins are wired")
-                for k in np.flatnonzero(~(hi > lo))]
+                                f"below rail_lo at {format_value(lo[k], 'V')}: check how its supply pins are wired")
+                for k in np.flatnonzero(~(hi >= lo))]
 
     def pin_currents(self, x: np.ndarray) -> np.ndarray:
         j = x[self.branch]

@@ -129,7 +129,7 @@ def test_hostile_opamp_rails_the_wrong_way_round(repo, capsys):
          "resistor RL from out to gnd : 10 kohm\n")
     code, _, err = check(capsys)
     assert code == 2
-    assert err.startswith("bike.circuit:6:7: error: the op-amp U1 has rail_hi at 0 V, not above rail_lo at 3.70 V")
+    assert err.startswith("bike.circuit:6:7: error: the op-amp U1 has rail_hi at 0 V, below rail_lo at 3.70 V")
 
 
 @pytest.mark.parametrize("line, position", [
