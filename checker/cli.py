@@ -2,14 +2,22 @@
 
 Exit codes (OUTPUTS.md): 0 every error-severity limit holds, 1 a limit fails or a
 waiver expired, 2 the input cannot be checked, 3 an internal error (a bug).
+
+Inputs come from pull requests, so a file system refusal (no space, no permission, a
+name too long) is an input error like any other, and `check` runs under a deadline
+(`--timeout`) so no input can hold a CI runner indefinitely.
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
 import datetime
+import math
 import os
+import signal
 import sys
+import threading
 from pathlib import Path
 from typing import Sequence
 
@@ -20,6 +28,12 @@ EXIT_OK, EXIT_FAIL, EXIT_INPUT, EXIT_BUG = 0, 1, 2, 3
 EXIT_BROKEN_PIPE = 141  # 128 + SIGPIPE, as shells report a pipe closed early
 REPORT_FORMATS = ("md", "html", "json", "junit", "sarif", "annotations")
 BUG_REPORT = "please report it with the command and the input files to the nodegate maintainers"
+DEFAULT_TIMEOUT = 1800.0  # s: generous for any repository the work caps (checker.pipeline) let through
+# The stage a run is in when its deadline passes, told by the outermost of these packages on the stack.
+STAGES = (("checker.repo.git", "checking out the base revision"), ("checker.repo.config", "reading the configuration"),
+          ("checker.language", "reading the circuits"), ("checker.limits", "reading and compiling the limits"),
+          ("checker.analysis", "solving the circuits"), ("checker.repo.baseline", "comparing with the base revision"),
+          ("checker.report", "writing the reports"))
 
 
 class _Parser(argparse.ArgumentParser):
@@ -57,6 +71,16 @@ def _revision(text: str) -> str:
     return text
 
 
+def _seconds(text: str) -> float:
+    try:
+        seconds = float(text)
+    except ValueError:
+        seconds = math.nan
+    if not 0 < seconds < math.inf:
+        raise argparse.ArgumentTypeError(f"`{text}` is not a number of seconds above 0")
+    return seconds
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="nodegate", description=(
         "Checks the DC operating points of circuit designs against the limits a hardware team writes."))
@@ -76,6 +100,8 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("--strict", action="store_true", help="warnings and unused waivers fail too")
     check.add_argument("--as-of", type=_date, metavar="YYYY-MM-DD",
                        help="judge waiver expiry as of this date (default: today), to reproduce an old run")
+    check.add_argument("--timeout", type=_seconds, default=DEFAULT_TIMEOUT, metavar="SECONDS",
+                       help=f"stop with exit code 2 when the check takes longer (default: {DEFAULT_TIMEOUT:g})")
 
     solve = commands.add_parser("solve", help="print the operating point of a circuit file")
     solve.add_argument("file", type=Path, help="a .circuit file")
@@ -103,7 +129,8 @@ def _dispatch(args: argparse.Namespace) -> int:
     # Imported here so `nodegate --help` stays fast and a broken stage cannot break the others.
     if args.command == "check":
         from checker.commands import check
-        return check.run(args)
+        with _deadline(args.timeout):
+            return check.run(args)
     if args.command == "solve":
         from checker.commands import solve
         return solve.run(args)
@@ -120,6 +147,63 @@ def _dispatch(args: argparse.Namespace) -> int:
     return EXIT_INPUT
 
 
+class _TimedOut(BaseException):
+    """The deadline passed. A BaseException, so that no `except Exception` on the way (the base
+    revision's check swallows input errors) carries on; `finally` blocks still clean up."""
+
+    def __init__(self, seconds: float, stage: str):
+        super().__init__(stage)
+        self.message = f"the check took longer than --timeout {seconds:g} s; it was {stage}"
+
+
+@contextlib.contextmanager
+def _deadline(seconds: float):
+    """Raise `_TimedOut` in the main thread after `seconds` (SIGALRM); where no alarm exists
+    (Windows, a thread other than the main one) the run has no deadline."""
+    if not hasattr(signal, "setitimer") or threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGALRM, lambda signum, frame: _ring(seconds, frame))
+    signal.setitimer(signal.ITIMER_REAL, seconds)
+    try:
+        yield
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0)
+        signal.signal(signal.SIGALRM, previous)
+
+
+def _ring(seconds: float, frame) -> None:
+    """The alarm: stop the run, unless files are being written or removed with stop signals held
+    (`checker.report.writer.signals_held`): cutting those would leave half a report set or a base
+    tree behind, so the alarm rings again a moment after."""
+    from checker.report import writer
+    if writer._Held.depth:  # noqa: SLF001 - the writer's own record of a block that must not be cut
+        signal.setitimer(signal.ITIMER_REAL, 0.05)
+        return
+    raise _TimedOut(seconds, _stage(frame))
+
+
+def _stage(frame) -> str:
+    """What the run was doing: the outermost frame of a stage's package (`STAGES`) among those the
+    command's own code called (below its innermost frame: wrappers around it do not count)."""
+    modules = []
+    while frame is not None:
+        modules.append(frame.f_globals.get("__name__", ""))
+        frame = frame.f_back
+    command = next((i for i, module in enumerate(modules) if module.startswith("checker.commands.")), len(modules))
+    for module in reversed(modules[:command]):
+        for package, stage in STAGES:
+            if module == package or module.startswith(package + "."):
+                return stage
+    return "finishing"
+
+
+def _refused(error: OSError) -> NodegateError:
+    """The file system's refusal (no space left, no permission, a name too long) as an input error."""
+    name = f" `{error.filename}`" if error.filename else ""
+    return NodegateError(f"the file system refused{name}: {error.strerror or error}")
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run one command; return its exit code. The only place that turns errors into codes."""
     try:
@@ -133,12 +217,20 @@ def main(argv: Sequence[str] | None = None) -> int:
     except NodegateError as error:
         print(render(error), file=sys.stderr)
         return EXIT_INPUT
+    except _TimedOut as late:
+        print(render(NodegateError(late.message, notes=(
+            "raise --timeout, or ask for less work: fewer circuits, lower `samples` or `vertex_values`",))),
+              file=sys.stderr)
+        return EXIT_INPUT
     except KeyboardInterrupt:
         print("nodegate: interrupted", file=sys.stderr)
         return 130
     except BrokenPipeError:  # the reader went away (`nodegate solve ... | head`): stop quietly
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return EXIT_BROKEN_PIPE
+    except OSError as error:
+        print(render(_refused(error)), file=sys.stderr)
+        return EXIT_INPUT
     except Exception as bug:  # noqa: BLE001 - the last line of defence: never a traceback
         print(f"nodegate: internal error ({type(bug).__name__}: {bug}); this is a bug, {BUG_REPORT}.",
               file=sys.stderr)

@@ -3,7 +3,9 @@
 Every input error surfaces before any solving: all circuits are elaborated and
 every limit is compiled against them first, so a typo in a limit file costs no
 solver time. Solving and evaluating follow the configuration's tolerance analysis
-(`checker.analysis`). Prints nothing; progress goes through the optional callback.
+(`checker.analysis`). A run whose estimated work is beyond what a CI job can finish
+(`MAX_BOARDS`, `MAX_VERTICES`) stops before solving, saying how to lower it. Prints
+nothing; progress goes through the optional callback.
 """
 
 from __future__ import annotations
@@ -12,14 +14,21 @@ import datetime
 from typing import Callable
 
 from checker.design import Design
-from checker.errors import DesignError, shown_path
+from checker.errors import ConfigError, DesignError, shown_path
 from checker.analysis import analyse
+from checker.analysis.tolerances import toleranced
+from checker.analysis.worstcase import DEFAULT_VERTEX_VALUES
 from checker.findings import Analysis, Findings
 from checker.language import load_design
 from checker.limits import LimitFile, compile_limits, load_limit_file, load_pack
 from checker.repo.config import Config
 
 Progress = Callable[[str], None]
+# The most work a run may ask for, so a pull request cannot hold a CI runner for hours.
+# Both are about 100 times what the bundled example asks for (worst-case: 5 cases of
+# 10 toleranced values, 5,120 vertices; Monte Carlo at the default 2,000 samples: 10,000 boards).
+MAX_BOARDS = 1_000_000  # Monte Carlo: samples x cases, summed over the circuits
+MAX_VERTICES = 4_194_304  # worst-case: 2^min(toleranced values, vertex_values) per case, summed
 
 
 def load_designs(config: Config) -> list[Design]:
@@ -36,8 +45,8 @@ def load_designs(config: Config) -> list[Design]:
 
 
 def load_limit_files(config: Config) -> list[LimitFile]:
-    return [load_pack(source.pack, source.location) if source.pack else load_limit_file(shown_path(source.path))
-            for source in config.limits]
+    return [load_pack(source.pack, source.location) if source.pack
+            else load_limit_file(shown_path(source.path), source.location) for source in config.limits]
 
 
 def analysis_of(config: Config) -> Analysis:
@@ -49,8 +58,32 @@ def analysis_of(config: Config) -> Analysis:
     return Analysis(config.tolerances)
 
 
+def check_work(config: Config, designs: list[Design]) -> None:
+    """ConfigError, before any solving, when the analysis would solve more points than the caps allow."""
+    cases = sum(len(design.netlists) for design in designs)
+    if config.tolerances == "monte-carlo":
+        boards = config.samples * cases
+        if boards > MAX_BOARDS:
+            raise ConfigError(
+                f"Monte Carlo would solve {boards:,} boards ({config.samples:,} samples x {cases} cases "
+                f"in {len(designs)} circuit{'s' if len(designs) > 1 else ''}), "
+                f"more than the {MAX_BOARDS:,} a check may take",
+                config.analysis_at.get("samples") or config.analysis_at.get("tolerances"),
+                (f"lower `samples` to at most {MAX_BOARDS // cases:,}, or check fewer circuits",))
+    if config.tolerances == "worst-case":
+        most = DEFAULT_VERTEX_VALUES if config.vertex_values is None else config.vertex_values
+        vertices = sum(1 << min(len(toleranced(netlist)), most) for design in designs for netlist in design.netlists)
+        if vertices > MAX_VERTICES:
+            raise ConfigError(
+                f"worst-case analysis would solve {vertices:,} vertices (2^min(toleranced values, "
+                f"vertex_values = {most}) in each of {cases} cases), more than the {MAX_VERTICES:,} a check may take",
+                config.analysis_at.get("vertex_values") or config.analysis_at.get("tolerances"),
+                ("lower `vertex_values`: cases with more toleranced values are searched from corners instead",))
+
+
 def run_check(config: Config, today: datetime.date, progress: Progress | None = None) -> Findings:
     """Solve every circuit in every case and evaluate every limit of `config` under its tolerance analysis."""
     designs = load_designs(config)
     limit_set = compile_limits(load_limit_files(config), designs)
+    check_work(config, designs)
     return analyse(limit_set, designs, today, analysis_of(config), progress)

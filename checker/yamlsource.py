@@ -2,16 +2,19 @@
 
 Limit files and `nodegate.yaml` arrive in pull requests from anyone, so they are read
 with `yaml.SafeLoader` only, bounded in size and nesting depth, with aliases refused
-(an alias can repeat a node exponentially: the "billion laughs" document). Every
-error is a `NodegateError` subclass carrying `path:line:column`, and strings keep the
-location of each of their characters so that an error inside a `check` expression
-points at the offending token, whether the string was written plain, quoted or as a
-`|`/`>` block.
+(an alias can repeat a node exponentially: the "billion laughs" document), at most
+`MAX_NODES` values and `MAX_LINE` characters on a line. Every error, down to a byte
+that is not UTF-8 or a control character, is a `NodegateError` subclass carrying
+`path:line:column`, and strings keep the location of each of their characters so that
+an error inside a `check` expression points at the offending token, whether the string
+was written plain, quoted or as a `|`/`>` block. Locations share the file's text
+rather than copy their line, so memory grows with the file, not with values × line.
 """
 
 from __future__ import annotations
 
 import bisect
+import re
 from pathlib import Path
 from typing import Iterable
 
@@ -20,7 +23,10 @@ import yaml
 from checker.errors import ConfigError, Location, NodegateError, did_you_mean
 
 MAX_DEPTH = 32  # nesting levels of mappings and lists
-MAX_NODES = 100_000  # scalars, mappings and lists in one document
+MAX_NODES = 20_000  # scalars, mappings and lists in one document: room for about 2,000 limits
+MAX_LINE = 10_000  # characters on one line; a `check` or `about` longer than this is not written by hand
+# Lone surrogates: a YAML escape (`"\ud800"`) makes one, and no UTF-8 report can hold it.
+_SURROGATE = re.compile("[\ud800-\udfff]")
 
 
 class _Source:
@@ -29,15 +35,18 @@ class _Source:
     def __init__(self, path: str, text: str):
         self.path = path
         self.text = text
-        self._starts = [0] + [i + 1 for i, ch in enumerate(text) if ch == "\n"]
+        self._starts = [0] + [match.end() for match in re.finditer("\n", text)]
 
     def location(self, index: int) -> Location:
-        """The 1-based line and column of character `index`, with the line's text."""
+        """The 1-based line and column of character `index`; the line's text stays in the shared file text."""
         row = bisect.bisect_right(self._starts, index) - 1
         start = self._starts[row]
-        end = self.text.find("\n", start)
-        line = self.text[start:] if end < 0 else self.text[start:end]
-        return Location(self.path, row + 1, index - start + 1, line.rstrip("\r"))
+        return Location(self.path, row + 1, index - start + 1, None, self.text, start)
+
+    def long_line(self) -> int | None:
+        """The index of the first character past `MAX_LINE` on a line, or None when every line fits."""
+        ends = self._starts[1:] + [len(self.text) + 1]
+        return next((start + MAX_LINE for start, end in zip(self._starts, ends) if end - 1 - start > MAX_LINE), None)
 
 
 class LocatedStr(str):
@@ -128,11 +137,12 @@ class LocatedList(list):
 
 
 class _Loader(yaml.SafeLoader):
-    """SafeLoader that refuses aliases and bounds the nesting depth while composing."""
+    """SafeLoader that refuses aliases and bounds the nesting depth and the number of values while
+    composing, so an oversized document stops at the value that passes the bound, before the rest is built."""
 
     def __init__(self, text: str, error: type[NodegateError], source: _Source):
         super().__init__(text)
-        self._error, self._source, self._depth = error, source, 0
+        self._error, self._source, self._depth, self._count = error, source, 0, 0
 
     def compose_node(self, parent, index):  # noqa: ANN001 - PyYAML's signature
         if self.check_event(yaml.AliasEvent):
@@ -140,9 +150,14 @@ class _Loader(yaml.SafeLoader):
             raise self._error("YAML aliases (`*name`) are not allowed here; write the value out",
                               self._source.location(mark.index))
         self._depth += 1
+        self._count += 1
         if self._depth > MAX_DEPTH:
             mark = self.peek_event().start_mark
             raise self._error(f"nesting deeper than {MAX_DEPTH} levels", self._source.location(mark.index))
+        if self._count > MAX_NODES:
+            mark = self.peek_event().start_mark
+            raise self._error(f"more than {MAX_NODES} YAML values in one file", self._source.location(mark.index),
+                              ("split the file, or write fewer, broader limits (`each:` covers every part of a kind)",))
         try:
             return super().compose_node(parent, index)
         finally:
@@ -153,15 +168,12 @@ _COLLECTION_TAGS = ("tag:yaml.org,2002:map", "tag:yaml.org,2002:seq")
 
 
 class _Builder:
-    """Turns composed YAML nodes into located Python values, counting nodes."""
+    """Turns composed YAML nodes into located Python values."""
 
     def __init__(self, loader: _Loader, source: _Source, error: type[NodegateError]):
-        self.loader, self.source, self.error, self.count = loader, source, error, 0
+        self.loader, self.source, self.error = loader, source, error
 
     def build(self, node: yaml.Node) -> object:
-        self.count += 1
-        if self.count > MAX_NODES:
-            raise self.error(f"more than {MAX_NODES} YAML values", self.where(node))
         if isinstance(node, yaml.CollectionNode) and node.tag not in _COLLECTION_TAGS:
             raise self.error(f"YAML tag `{node.tag}` is not allowed here", self.where(node))
         if isinstance(node, yaml.MappingNode):
@@ -185,8 +197,18 @@ class _Builder:
         except (ValueError, OverflowError) as exc:  # a date like 2030-13-01 passes the resolver, not the calendar
             raise self.error(f"cannot read this value: {exc}", self.where(node)) from None
         if isinstance(value, str):
-            return LocatedStr(value, self.source, node.start_mark.index, node.end_mark.index, node.style)
+            return self.text(value, node)
         return value
+
+    def text(self, value: str, node: yaml.ScalarNode) -> LocatedStr:
+        """A located string; a lone surrogate (from an escape like `"\\ud800"`) is refused here, at
+        its place, because no UTF-8 report or terminal could print it later."""
+        located = LocatedStr(value, self.source, node.start_mark.index, node.end_mark.index, node.style)
+        found = _SURROGATE.search(value)
+        if found is not None:
+            raise self.error(f"`\\u{ord(found.group()):04x}` is half of a UTF-16 surrogate pair, not a character",
+                             located.location_at(found.start()), ("write the character itself",))
+        return located
 
     def mapping(self, node: yaml.MappingNode) -> LocatedDict:
         result = LocatedDict(self.where(node))
@@ -208,33 +230,61 @@ class _Builder:
 def load_yaml_text(text: str, path: str, error: type[NodegateError] = ConfigError) -> object:
     """Parse YAML `text` (named `path` in messages) into located values; None for an empty document."""
     source = _Source(path, text)
-    loader = _Loader(text, error, source)
+    too_long = source.long_line()
+    if too_long is not None:
+        raise error(f"a line longer than {MAX_LINE} characters", source.location(too_long),
+                    ("break it up: YAML folds long text written as a `>` block",))
+    loader = None
     try:
+        loader = _Loader(text, error, source)  # the reader refuses control characters here
         node = loader.get_single_node()
+    except yaml.reader.ReaderError as exc:
+        raise error(f"the control character U+{exc.character:04X} is not allowed in YAML; remove it",
+                    source.location(exc.position)) from None
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
         location = source.location(mark.index) if mark is not None else Location(path, 1, 1)
         raise error(f"YAML syntax: {exc.problem or exc.context}", location) from None
-    except yaml.YAMLError as exc:  # reader errors: control characters and the like
-        raise error(f"YAML: {exc}", Location(path, 1, 1)) from None
     finally:
-        loader.dispose()
+        if loader is not None:
+            loader.dispose()
     return None if node is None else _Builder(loader, source, error).build(node)
 
 
-def load_yaml(path: Path, max_bytes: int = 1_000_000, error: type[NodegateError] = ConfigError) -> object:
-    """Read a YAML file of at most `max_bytes` into located values (see `load_yaml_text`)."""
+def load_yaml(path: Path, max_bytes: int = 1_000_000, error: type[NodegateError] = ConfigError,
+              named_at: Location | None = None) -> object:
+    """Read a YAML file of at most `max_bytes` into located values (see `load_yaml_text`).
+
+    A file that cannot be read (missing, a folder, no permission, a name too long, a
+    link loop) is an error at `named_at`, where the file was named, if given.
+    """
     name = str(path)
     try:
-        size = Path(path).stat().st_size
-        if size > max_bytes:
-            raise error(f"file is {size} bytes, more than the {max_bytes} allowed", Location(name, 1, 1))
-        text = Path(path).read_bytes().decode("utf-8").removeprefix("\ufeff")  # columns count from the text
+        data = _read_bytes(Path(path), max_bytes)
     except OSError as exc:
-        raise error(f"cannot read `{name}`: {exc.strerror or exc}", None) from None
+        raise error(f"cannot read `{name}`: {exc.strerror or exc}", named_at) from None
+    if len(data) > max_bytes:
+        raise error(f"file is larger than the {max_bytes} bytes allowed", Location(name, 1, 1))
+    return load_yaml_text(_decoded(data, name, error), name, error)
+
+
+def _read_bytes(path: Path, max_bytes: int) -> bytes:
+    """At most `max_bytes` + 1 bytes of `path`: enough to tell that it is too large, without reading it all."""
+    with open(path, "rb") as handle:
+        return handle.read(max_bytes + 1)
+
+
+def _decoded(data: bytes, name: str, error: type[NodegateError]) -> str:
+    """UTF-8 text without a byte-order mark (columns count from the text); an error at the first bad byte."""
+    try:
+        return data.decode("utf-8").removeprefix("\ufeff")
     except UnicodeDecodeError as exc:
-        raise error(f"file is not UTF-8 text (byte {exc.start})", Location(name, 1, 1)) from None
-    return load_yaml_text(text, name, error)
+        start = data.rfind(b"\n", 0, exc.start) + 1
+        column = len(data[start:exc.start].decode("utf-8", errors="replace").removeprefix("\ufeff")) + 1
+        end = data.find(b"\n", exc.start)
+        line = data[start:end if end >= 0 else len(data)].decode("utf-8", errors="replace")
+        where = Location(name, data.count(b"\n", 0, exc.start) + 1, column, line.rstrip("\r"))
+        raise error(f"the file is not UTF-8 text (byte 0x{data[exc.start]:02X})", where) from None
 
 
 def location_of(value: object, fallback: Location | None) -> Location | None:

@@ -39,9 +39,10 @@ class LimitFile:
     waivers: tuple[Waiver, ...]
 
 
-def load_limit_file(path: Path | str) -> LimitFile:
-    """Read a limits file; LimitError at the offending key or value for anything malformed."""
-    data = load_yaml(Path(path), MAX_BYTES, LimitError)
+def load_limit_file(path: Path | str, named_at: Location | None = None) -> LimitFile:
+    """Read a limits file; LimitError at the offending key or value for anything malformed, or at
+    `named_at` (where the configuration lists the file) when it cannot be read at all."""
+    data = load_yaml(Path(path), MAX_BYTES, LimitError, named_at)
     return _read(data, str(path), str(path))
 
 

@@ -49,11 +49,20 @@ class Config:
     samples: int = 2000
     seed: int = 1
     vertex_values: int | None = None  # None: the analysis's own default (docs/analysis.md)
+    analysis_at: dict[str, Location] = field(default_factory=dict, compare=False)  # `analysis` key -> its value
     reports: dict[str, Path] = field(default_factory=dict)  # format (md, html, ...) -> path
 
 
 def find_config(directory: Path, config: Path | None) -> Path:
-    """The configuration file: `--config`, else DIR/nodegate.yaml (or .yml)."""
+    """The configuration file: `--config`, else DIR/nodegate.yaml (or .yml); a path the system
+    refuses (a name too long, no permission) is a ConfigError naming it."""
+    try:
+        return _find_config(directory, config)
+    except OSError as error:
+        raise ConfigError(f"cannot use `{config or directory}`: {error.strerror or error}") from None
+
+
+def _find_config(directory: Path, config: Path | None) -> Path:
     if config is not None:
         if config.is_dir():
             raise ConfigError(f"`--config {config}` is a folder; --config names the configuration file itself")
@@ -98,7 +107,7 @@ def _inside(root: Path, text: str, where: Location | None, what: str) -> Path:
         raise ConfigError(f"{what} contains a NUL character", where)
     if Path(text).is_absolute():
         raise ConfigError(f"{what} `{text}` must be relative to the configuration file", where)
-    resolved = (root / text).resolve()
+    resolved = _resolved(root / text, where, what)
     if resolved != root and root not in resolved.parents:
         raise ConfigError(f"{what} `{text}` is outside the repository (the configuration's folder)", where)
     return resolved
@@ -114,10 +123,10 @@ def _circuits(value: object, root: Path, where: Location) -> tuple[Path, ...]:
         if not matches:
             raise ConfigError(f"no circuit file matches `{pattern}`", pattern.location)
         for match in matches:
-            resolved = match.resolve()
+            resolved = _resolved(match, pattern.location, "circuit path")
             if resolved != root and root not in resolved.parents:
                 raise ConfigError(f"circuit `{match}` is outside the repository", pattern.location)
-            if not resolved.is_file():
+            if not _is_file(resolved, pattern.location, "circuit file"):
                 raise ConfigError(f"circuit file `{pattern}` does not exist", pattern.location)
             found[resolved] = None
     if not found:
@@ -125,6 +134,25 @@ def _circuits(value: object, root: Path, where: Location) -> tuple[Path, ...]:
     if len(found) > MAX_CIRCUITS:
         raise ConfigError(f"more than {MAX_CIRCUITS} circuits", where)
     return tuple(found)
+
+
+def _resolved(path: Path, where: Location | None, what: str) -> Path:
+    """`path` with its links followed; a link loop (which Python reports as RuntimeError or
+    ELOOP) or a name the system refuses is a ConfigError at `where`."""
+    try:
+        return path.resolve()
+    except RuntimeError:
+        raise ConfigError(f"{what} `{path.name}` is a loop of symbolic links", where) from None
+    except OSError as error:
+        raise ConfigError(f"cannot follow {what} `{path.name}`: {error.strerror or error}", where) from None
+
+
+def _is_file(path: Path, where: Location | None, what: str) -> bool:
+    """Whether `path` is a file; a name too long or a folder without permission is a ConfigError at `where`."""
+    try:
+        return path.is_file()
+    except OSError as error:
+        raise ConfigError(f"cannot use {what} `{path.name}`: {error.strerror or error}", where) from None
 
 
 def _is_glob(pattern: str) -> bool:
@@ -155,7 +183,7 @@ def _limits(value: object, root: Path, data: LocatedDict) -> tuple[LimitSource, 
             continue
         text = expect_text(item, "a limits file path or `pack: NAME`", where)
         path = _inside(root, text, text.location, "limits file")
-        if not path.is_file():
+        if not _is_file(path, text.location, "limits file"):
             raise ConfigError(f"limits file `{text}` does not exist", text.location)
         sources.append(LimitSource(path=path, location=text.location))
     _listed_once(sources)
@@ -179,7 +207,7 @@ def _analysis(value: object, data: LocatedDict) -> dict:
         return {}
     section = expect_mapping(value, "`analysis`", data.value_location("analysis"))
     check_keys(section, ANALYSIS_KEYS, "`analysis`")
-    result: dict = {}
+    result: dict = {"analysis_at": {key: section.value_location(key) for key in section}}
     if "tolerances" in section:
         mode = expect_text(section["tolerances"], "`tolerances`", section.value_location("tolerances"))
         if mode not in TOLERANCE_MODES:
