@@ -27,7 +27,10 @@ def repository_root(circuit: Path) -> Path:
     `use` paths must stay inside the repository root; `solve` finds the same root
     that `check` would use, so a board file that uses a shared library solves alike.
     """
-    folder = circuit.resolve().parent
+    try:
+        folder = circuit.resolve().parent
+    except (OSError, RuntimeError) as error:  # a symbolic link loop, a name too long
+        raise DesignError(f"cannot read `{circuit}`: {getattr(error, 'strerror', None) or error}") from None
     for candidate in (folder, *folder.parents):
         if any((candidate / name).is_file() for name in CONFIG_NAMES):
             return candidate

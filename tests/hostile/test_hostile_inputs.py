@@ -151,6 +151,13 @@ def test_hostile_symlink_loop_matched_by_the_glob_is_located(repo, capsys):
     assert "loop" in err
 
 
+def test_hostile_solve_of_a_symlink_loop_is_an_input_error(tmp_path, capsys):
+    os.symlink("loop.circuit", tmp_path / "loop.circuit")
+    assert main(["solve", str(tmp_path / "loop.circuit")]) == 2
+    err = capsys.readouterr().err
+    assert "cannot read" in err and "Traceback" not in err
+
+
 def test_hostile_unreadable_limits_file_is_located_where_the_configuration_names_it(repo, capsys, monkeypatch):
     read = checker.yamlsource._read_bytes
 
