@@ -28,7 +28,7 @@ switch   S1    from sw to k    : closed, ron = 0.2 ohm
 capacitor C1   from tap to gnd : 100 nF
 load     MCU   from bat to gnd : 4 mA
 case low  : VBAT = 3.2 V, ambient = -10 degC
-case high : VBAT = 4.2 V, S1 = open, MCU = 60 ohm
+case high : VBAT = 4.2 V, S1 = open, MCU = 70 mA
 """
 
 LIMITS = """\
