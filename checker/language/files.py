@@ -30,16 +30,21 @@ def read_source(path: Path, shown: str, location: Location | None) -> Source:
             data = handle.read(MAX_FILE_BYTES + 1)
     except OSError as error:
         raise DesignError(f"cannot read `{shown}`: {error.strerror or error}", location) from None
-    if len(data) > MAX_FILE_BYTES:
-        raise DesignError(_too_large(shown), location)
+    if len(data) > MAX_FILE_BYTES:  # at the `use` that names it, else at the file itself
+        raise DesignError(_too_large(shown), location or Location(shown, 1, 1, _first_line(data)))
     return Source(shown, decode(data, shown))
 
 
 def text_source(text: str, shown: str) -> Source:
     """Text held in memory, bounded and normalised exactly as a file read from disk would be."""
     if len(text.encode("utf-8", errors="surrogatepass")) > MAX_FILE_BYTES:
-        raise DesignError(_too_large(shown))
+        raise DesignError(_too_large(shown), Location(shown, 1, 1, text.split("\n", 1)[0][:200]))
     return Source(shown, _normalised(text))
+
+
+def _first_line(data: bytes) -> str:
+    """The start of the first line, for the error's echo (the file itself is not read again)."""
+    return data[:200].split(b"\n", 1)[0].decode("utf-8", errors="replace")
 
 
 def _too_large(shown: str) -> str:

@@ -118,7 +118,10 @@ def test_language_missing_top_file(tmp_path):
 def test_language_file_too_large(tmp_path):
     path = tmp_path / "big.circuit"
     path.write_bytes(b"#" * (2 * 1024 * 1024 + 1))
-    assert "larger than" in failure(path).message
+    caught = failure(path)
+    assert "larger than" in caught.message
+    assert (caught.location.path, caught.location.line, caught.location.column) == (caught.location.path, 1, 1)
+    assert caught.location.path.endswith("big.circuit")  # at the file itself: it has no `use` to blame
 
 
 def test_language_file_not_utf8(tmp_path):
