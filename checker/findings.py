@@ -26,11 +26,12 @@ class Limit:
     cases: tuple[str, ...] | None = None  # None: every case
     source: str = ""  # the limits file, or "pack:NAME"
     location: Location | None = field(default=None, compare=False)  # the limit's `id:` line
+    circuits: tuple[str, ...] | None = None  # bound to these circuits (docs/limits.md); None: unbound
 
 
 @dataclass(frozen=True)
 class Waiver:
-    """An accepted failure of one limit, optionally narrowed to a part and a case, until a date."""
+    """An accepted failure of one limit, optionally narrowed to a part, a case and circuits, until a date."""
 
     limit: str
     reason: str
@@ -38,6 +39,7 @@ class Waiver:
     part: str | None = None
     case: str | None = None
     location: Location | None = field(default=None, compare=False)
+    circuits: tuple[str, ...] | None = None  # None: every circuit
 
 
 @dataclass(frozen=True)

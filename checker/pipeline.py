@@ -45,8 +45,10 @@ def load_designs(config: Config) -> list[Design]:
 
 
 def load_limit_files(config: Config) -> list[LimitFile]:
-    return [load_pack(source.pack, source.location) if source.pack
-            else load_limit_file(shown_path(source.path), source.location) for source in config.limits]
+    """Every limits file and pack of `config`, each carrying the circuits its entry binds it to."""
+    return [load_pack(source.pack, source.location, source.circuits) if source.pack
+            else load_limit_file(shown_path(source.path), source.location, source.circuits)
+            for source in config.limits]
 
 
 def analysis_of(config: Config) -> Analysis:

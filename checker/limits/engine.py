@@ -5,8 +5,14 @@ Two steps so that every rule error shows before any solving: `compile_limits`
 items of `each` limits) and `evaluate` (one Outcome per limit x circuit x item x
 case, then waivers). `evaluate_limits` and `check_findings` do both.
 
-Which circuits a limit applies to (docs/limits.md): every circuit in which all its
-names resolve; a name that resolves in no circuit is an error at its token.
+Which circuits a limit applies to (docs/limits.md, "Binding limits to circuits"): a
+bound limit (`circuits:` on the limit or on its file's entry in nodegate.yaml) to those,
+and each of its names must resolve in each of them; an unbound one to every circuit
+(having one of its `cases`), where its names must resolve too, or the error names the
+circuits that lack them and suggests binding it. An `each` limit that names nothing but
+`part` resolves everywhere and simply finds no items where none are fitted. Silently
+skipping the circuits that lack a name would let a misspelt net move a limit to another
+board and leave the intended node unchecked.
 """
 
 from __future__ import annotations
@@ -111,51 +117,99 @@ def _parse(limit: Limit) -> tuple:
     return parse_expression(limit.check, limit.location), where
 
 
-def _compile_everywhere(limit: Limit, designs: Sequence[Design]) -> list[CompiledLimit]:
-    """The limit in every circuit where all its names resolve; the latest-placed miss if none."""
+def _applies_to(limit: Limit, designs: Sequence[Design]) -> list[Design]:
+    """The circuits of a limit: its binding, else every circuit that has one of its cases (all, without `cases`)."""
+    if limit.circuits is not None:
+        return [design for design in designs if design.name in limit.circuits]
+    return [design for design in designs
+            if limit.cases is None or any(case in design.cases for case in limit.cases)]
+
+
+def _compile_in(limit: Limit, designs: Sequence[Design]) -> list[CompiledLimit]:
+    """The limit compiled in each circuit it applies to; every name must resolve in each of them."""
     trees = _parse(limit)
     done, missed = [], []
-    for design in designs:
+    for design in _applies_to(limit, designs):
         try:
             done.append(compile_limit(limit, design, trees))
         except Unresolved as error:
-            missed.append(error)
-    if missed and not done:
-        error = max(missed, key=lambda e: (e.location.line, e.location.column) if e.location else (0, 0))
-        if len(designs) > 1:
-            error.notes += ("a limit applies to each circuit that has every name it uses",)
-        raise error
-    return done
+            if limit.circuits is not None:
+                raise  # bound: the name must be in this circuit; the error is at its token, with the nearest
+            missed.append((design.name, error))
+    if not missed:
+        return done
+    if not done:
+        raise _nowhere(missed)
+    raise _unbound(limit, [compiled.circuit for compiled in done], missed)
 
 
-def _known(name: str, choices: Iterable[str], what: str, fallback: Location | None) -> None:
+def _nowhere(missed: list[tuple[str, Unresolved]]) -> Unresolved:
+    """A limit that resolves in no circuit: the miss placed latest in the check (the circuit where it
+    got furthest), which is most likely the slip."""
+    error = max((error for _, error in missed),
+                key=lambda e: (e.location.line, e.location.column) if e.location else (0, 0))
+    if len(missed) > 1:
+        error.notes += ("no circuit has every name this limit uses",)
+    return error
+
+
+def _unbound(limit: Limit, resolved: list[str], missed: list[tuple[str, Unresolved]]) -> LimitError:
+    """An unbound limit that resolves in some circuits only: written for those, so say where it fails
+    and suggest binding it, instead of quietly checking it where its names happen to exist."""
+    first = missed[0][1]
+    failing = ", ".join(f"`{name}`" for name, _ in missed)
+    return LimitError(
+        f"{first.message}; limit `{limit.id}` is unbound, so it applies to every circuit, "
+        f"and it fails to resolve in {failing}", first.location,
+        first.notes + (f"bind it to the circuits it is written for: `circuits: [{', '.join(resolved)}]` "
+                       "on the limit, or on its file's entry in nodegate.yaml",))
+
+
+def _known(name: str, choices: Iterable[str], what: str, fallback: Location | None,
+           notes: tuple[str, ...] = ()) -> None:
     """LimitError at `name` (a LocatedStr when loaded from a file) unless it is one of `choices`."""
     choices = tuple(choices)
     if name not in choices:
-        raise LimitError(f"no {what} `{name}`", getattr(name, "location", fallback), did_you_mean(name, choices))
+        raise LimitError(f"no {what} `{name}`", getattr(name, "location", fallback),
+                         did_you_mean(name, choices) + notes)
+
+
+def _known_circuits(names: Iterable[str] | None, designs: Sequence[Design], fallback: Location | None) -> None:
+    """LimitError at the first name of a binding that is no circuit's `circuit NAME`."""
+    circuits = [design.name for design in designs]
+    for name in names or ():
+        _known(name, circuits, "circuit", fallback, (f"circuits: {', '.join(circuits)}",))
 
 
 def _check_waivers(waivers: Sequence[Waiver], limits: Sequence[Limit], designs: Sequence[Design]) -> None:
+    """Every name a waiver uses must exist: its limit anywhere, its circuits, and its case and part
+    in the circuits it is narrowed to."""
     ids = [limit.id for limit in limits]
-    cases = {case for design in designs for case in design.cases}
-    parts = {part.name for design in designs for part in design.parts}
     for waiver in waivers:
         _known(waiver.limit, ids, "limit with id", waiver.location)
-        if designs and waiver.case is not None:
-            _known(waiver.case, cases, "case", waiver.location)
-        if designs and waiver.part is not None:
-            _known(waiver.part, parts, "part", waiver.location)
+        if not designs:
+            continue
+        _known_circuits(waiver.circuits, designs, waiver.location)
+        mine = [design for design in designs if waiver.circuits is None or design.name in waiver.circuits]
+        if waiver.case is not None:
+            _known(waiver.case, {case for design in mine for case in design.cases}, "case", waiver.location)
+        if waiver.part is not None:
+            _known(waiver.part, {part.name for design in mine for part in design.parts}, "part", waiver.location)
 
 
 def compile_limits(limit_files: Sequence[LimitFile], designs: Sequence[Design]) -> LimitSet:
     """Check every limit and waiver against the circuits, before any solving. LimitError on the first problem."""
     limits = unique_ids(limit for file in limit_files for limit in file.limits)
     cases = sorted({case for design in designs for case in design.cases})
+    for file in limit_files if designs else ():
+        _known_circuits(file.circuits, designs, None)
     compiled: list[CompiledLimit] = []
     for limit in limits:
+        if designs:
+            _known_circuits(limit.circuits, designs, limit.location)
         for case in (limit.cases or ()) if designs else ():
             _known(case, cases, "case", limit.location)
-        compiled.extend(_compile_everywhere(limit, designs))
+        compiled.extend(_compile_in(limit, designs))
     waivers = tuple(waiver for file in limit_files for waiver in file.waivers)
     _check_waivers(waivers, limits, designs)
     return LimitSet(tuple(compiled), waivers)

@@ -1,7 +1,10 @@
 """Limit files and built-in packs: YAML in, `Limit` and `Waiver` records out (RULES.md, "A limits file").
 
-Only the shape is checked here (keys, types, ids, dates); expressions are parsed and
-their names resolved later, against the circuits, by `checker.limits.engine`.
+Only the shape is checked here (keys, types, ids, dates, `circuits` lists); expressions
+are parsed and their names, and the circuit names of bindings, resolved later against the
+circuits by `checker.limits.engine`. A file listed in `nodegate.yaml` with `circuits:` is
+bound to them: its limits and waivers carry that binding, which their own `circuits:` may
+only narrow (docs/limits.md, "Binding limits to circuits").
 """
 
 from __future__ import annotations
@@ -13,14 +16,14 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable
 
-from checker.errors import CONTROL_CHARACTER, LimitError, Location, did_you_mean
+from checker.errors import CONTROL_CHARACTER, LimitError, Location, NodegateError, did_you_mean
 from checker.findings import Limit, Waiver
 from checker.limits.vocabulary import KINDS
 from checker.yamlsource import (LocatedDict, LocatedStr, check_keys, expect_list, expect_mapping,
                                 expect_text, load_yaml, load_yaml_text, location_of)
 
-LIMIT_KEYS = ("id", "about", "check", "each", "where", "cases", "severity")
-WAIVER_KEYS = ("limit", "part", "case", "reason", "until")
+LIMIT_KEYS = ("id", "about", "check", "each", "where", "cases", "severity", "circuits")
+WAIVER_KEYS = ("limit", "part", "case", "circuits", "reason", "until")
 SEVERITIES = ("error", "warning")
 MAX_BYTES = 1_000_000
 MAX_TEXT = {"about": 500, "reason": 2000}  # characters of the free text shown in every report
@@ -32,18 +35,22 @@ _PACK_NAME = re.compile(r"[a-z0-9][a-z0-9_-]*")
 
 @dataclass(frozen=True)
 class LimitFile:
-    """The limits and waivers of one file (or pack), in the order written."""
+    """The limits and waivers of one file (or pack), in the order written, and the circuits
+    its `nodegate.yaml` entry binds it to (None: unbound)."""
 
     path: str
     limits: tuple[Limit, ...]
     waivers: tuple[Waiver, ...]
+    circuits: tuple[str, ...] | None = None
 
 
-def load_limit_file(path: Path | str, named_at: Location | None = None) -> LimitFile:
-    """Read a limits file; LimitError at the offending key or value for anything malformed, or at
-    `named_at` (where the configuration lists the file) when it cannot be read at all."""
+def load_limit_file(path: Path | str, named_at: Location | None = None,
+                    circuits: tuple[str, ...] | None = None) -> LimitFile:
+    """Read a limits file, bound to `circuits` when given; LimitError at the offending key or value
+    for anything malformed, or at `named_at` (where the configuration lists the file) when it cannot
+    be read at all."""
     data = load_yaml(Path(path), MAX_BYTES, LimitError, named_at)
-    return _read(data, str(path), str(path))
+    return _read(data, str(path), str(path), circuits)
 
 
 def load_limit_text(text: str, path: str, source: str | None = None) -> LimitFile:
@@ -70,27 +77,28 @@ def available_packs() -> tuple[str, ...]:
     return tuple(sorted(path.stem for path in rules_folder().glob("*.yaml")))
 
 
-def load_pack(name: str, location: Location | None = None) -> LimitFile:
-    """A built-in pack by name (`derating` -> rules/derating.yaml); `location` is where the name was written."""
+def load_pack(name: str, location: Location | None = None, circuits: tuple[str, ...] | None = None) -> LimitFile:
+    """A built-in pack by name (`derating` -> rules/derating.yaml), bound to `circuits` when given;
+    `location` is where the name was written."""
     packs = available_packs()
     if not _PACK_NAME.fullmatch(name) or name not in packs:
         raise LimitError(f"no built-in limit pack `{name}`", location,
                          did_you_mean(name, packs) + (f"available packs: {', '.join(packs) or 'none'}",))
     path = rules_folder() / f"{name}.yaml"
     data = load_yaml(path, MAX_BYTES, LimitError)
-    return _read(data, str(path), f"pack:{name}")
+    return _read(data, str(path), f"pack:{name}", circuits)
 
 
-def _read(data: object, path: str, source: str) -> LimitFile:
+def _read(data: object, path: str, source: str, circuits: tuple[str, ...] | None = None) -> LimitFile:
     start = Location(path, 1, 1)
     if data is None:
-        return LimitFile(path, (), ())
+        return LimitFile(path, (), (), circuits)
     top = expect_mapping(data, "a limits file", start, LimitError)
     check_keys(top, ("limits", "waivers"), "a limits file", LimitError)
-    limits = tuple(_limit(item, source) for item in _entries(top, "limits"))
+    limits = tuple(_limit(item, source, circuits) for item in _entries(top, "limits"))
     unique_ids(limits)
-    waivers = tuple(_waiver(item) for item in _entries(top, "waivers"))
-    return LimitFile(path, limits, waivers)
+    waivers = tuple(_waiver(item, circuits) for item in _entries(top, "waivers"))
+    return LimitFile(path, limits, waivers, circuits)
 
 
 def _entries(top: LocatedDict, key: str) -> list[LocatedDict]:
@@ -109,7 +117,7 @@ def _text(entry: LocatedDict, key: str, what: str, required: bool = True):
     return expect_text(entry[key], f"`{key}`", entry.value_location(key), LimitError)
 
 
-def _limit(entry: LocatedDict, source: str) -> Limit:
+def _limit(entry: LocatedDict, source: str, binding: tuple[str, ...] | None) -> Limit:
     check_keys(entry, LIMIT_KEYS, "a limit", LimitError)
     ident = _text(entry, "id", "a limit")
     if not _KEBAB.fullmatch(ident):
@@ -126,7 +134,7 @@ def _limit(entry: LocatedDict, source: str) -> Limit:
         raise LimitError("`where` chooses among the parts of `each`; add `each: KIND`", entry.key_location("where"))
     return Limit(id=str(ident), about=str(about or "").strip(), check=_text(entry, "check", f"limit `{ident}`"),
                  severity=_severity(entry), each=each, where=where, cases=_cases(entry),
-                 source=source, location=entry.key_location("id"))
+                 source=source, location=entry.key_location("id"), circuits=_bound(entry, binding))
 
 
 def _plain(text: LocatedStr, key: str) -> LocatedStr:
@@ -168,16 +176,43 @@ def _cases(entry: LocatedDict) -> tuple[str, ...] | None:
     if not items:
         raise LimitError("`cases` lists at least one case; leave it out for every case", items.location)
     return _once_each(tuple(expect_text(item, "a case name", items.item_location(i), LimitError)
-                            for i, item in enumerate(items)))
+                            for i, item in enumerate(items)), "case")
 
 
-def _once_each(cases: tuple) -> tuple:
-    """The case names of `cases:`, each listed once: a repeated name is a slip (another case
-    was meant), which would otherwise pass unnoticed."""
-    for index, case in enumerate(cases):
-        if case in cases[:index]:
-            raise LimitError(f"case `{case}` is listed twice in `cases`", case.location)
-    return cases
+def _once_each(names: tuple, what: str, error: type[NodegateError] = LimitError) -> tuple:
+    """The names of `cases:` or `circuits:`, each listed once: a repeated name is a slip (another
+    one was meant), which would otherwise pass unnoticed."""
+    for index, name in enumerate(names):
+        if name in names[:index]:
+            raise error(f"{what} `{name}` is listed twice in `{what}s`", name.location)
+    return names
+
+
+def circuit_names(value: object, where: Location | None,
+                  error: type[NodegateError] = LimitError) -> tuple[LocatedStr, ...]:
+    """A `circuits:` list (in a limits file, or on a limits entry of `nodegate.yaml`): circuit names
+    from their `circuit NAME` line, each once; whether they exist is checked against the circuits."""
+    items = expect_list(value, "`circuits`", where, error)
+    if not items:
+        raise error("`circuits` lists at least one circuit; leave it out to apply to every circuit",
+                    items.location)
+    return _once_each(tuple(expect_text(item, "a circuit name", items.item_location(i), error)
+                            for i, item in enumerate(items)), "circuit", error)
+
+
+def _bound(entry: LocatedDict, binding: tuple[str, ...] | None) -> tuple[str, ...] | None:
+    """The circuits a limit or waiver is bound to: its own `circuits:`, which may only narrow its
+    file's binding (a name outside it would be a limit the configuration keeps off that circuit)."""
+    if "circuits" not in entry:
+        return binding
+    own = circuit_names(entry["circuits"], entry.value_location("circuits"))
+    for name in own:
+        if binding is not None and name not in binding:
+            raise LimitError(f"circuit `{name}` is outside its file's binding "
+                             f"(`circuits: [{', '.join(binding)}]`)", name.location,
+                             did_you_mean(name, binding)
+                             + (f"the configuration binds this file at {location_of(binding[0], None)}",))
+    return own
 
 
 def unique_ids(limits: Iterable[Limit]) -> list[Limit]:
@@ -193,13 +228,13 @@ def unique_ids(limits: Iterable[Limit]) -> list[Limit]:
     return list(seen.values())
 
 
-def _waiver(entry: LocatedDict) -> Waiver:
+def _waiver(entry: LocatedDict, binding: tuple[str, ...] | None) -> Waiver:
     check_keys(entry, WAIVER_KEYS, "a waiver", LimitError)
     limit = _text(entry, "limit", "a waiver")
     reason = _plain(_text(entry, "reason", f"the waiver of `{limit}`"), "reason")
     return Waiver(limit=limit, reason=str(reason).strip(), until=_date(entry),
                   part=_text(entry, "part", "", False), case=_text(entry, "case", "", False),
-                  location=entry.location)
+                  location=entry.location, circuits=_bound(entry, binding))
 
 
 def _date(entry: LocatedDict) -> datetime.date:

@@ -1,7 +1,8 @@
 """Waivers: which failing outcomes are accepted, and which waivers have expired or matched nothing.
 
 RULES.md: a waiver names a limit, optionally a part and a case that narrow it, a
-reason and an end date. A failure in a case the waiver does not cover still fails.
+reason and an end date; nodegate adds `circuits`, which narrows it the same way
+(docs/limits.md). A failure in a case the waiver does not cover still fails.
 An expired waiver waives nothing and is reported (exit 1); a waiver that matched
 no failing outcome is reported as unused (a warning).
 """
@@ -17,6 +18,7 @@ from checker.findings import Finding, Outcome, Waiver, WaiverNote
 
 def _covers(waiver: Waiver, finding: Finding, outcome: Outcome) -> bool:
     return (waiver.limit == finding.limit.id
+            and (waiver.circuits is None or finding.circuit in waiver.circuits)
             and (waiver.part is None or waiver.part == finding.item)
             and (waiver.case is None or waiver.case == outcome.case))
 

@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from checker.errors import ConfigError, Location, shown_path
+from checker.limits.files import circuit_names
 from checker.report.writer import EXTENSIONS, HEAD_BYTES, is_report
 from checker.yamlsource import (
     LocatedDict, LocatedStr, check_keys, expect_list, expect_mapping, expect_text, load_yaml,
@@ -30,11 +31,13 @@ MAX_SAMPLES = 1_000_000
 
 @dataclass(frozen=True)
 class LimitSource:
-    """A limits file (`path`) or a built-in pack (`pack`), with where the configuration names it."""
+    """A limits file (`path`) or a built-in pack (`pack`), with where the configuration names it,
+    and the circuits it is bound to (None: every circuit, docs/limits.md)."""
 
     path: Path | None = None
     pack: str | None = None
     location: Location | None = field(default=None, compare=False)
+    circuits: tuple[str, ...] | None = field(default=None, compare=False)
 
 
 @dataclass(frozen=True)
@@ -177,17 +180,34 @@ def _limits(value: object, root: Path, data: LocatedDict) -> tuple[LimitSource, 
     for index, item in enumerate(items):
         where = items.item_location(index)
         if isinstance(item, LocatedDict):
-            check_keys(item, ("pack",), "a limits entry")
-            name = expect_text(item.get("pack"), "`pack`", where)
-            sources.append(LimitSource(pack=str(name), location=name.location))
+            sources.append(_limits_entry(item, root, where))
             continue
-        text = expect_text(item, "a limits file path or `pack: NAME`", where)
-        path = _inside(root, text, text.location, "limits file")
-        if not _is_file(path, text.location, "limits file"):
-            raise ConfigError(f"limits file `{text}` does not exist", text.location)
-        sources.append(LimitSource(path=path, location=text.location))
+        text = expect_text(item, "a limits file path, `path: FILE` or `pack: NAME`", where)
+        sources.append(LimitSource(path=_limits_file(root, text), location=text.location))
     _listed_once(sources)
     return tuple(sources)
+
+
+def _limits_entry(item: LocatedDict, root: Path, where: Location) -> LimitSource:
+    """`- path: FILE` or `- pack: NAME`, either optionally bound with `circuits: [NAME, ...]`."""
+    check_keys(item, ("path", "pack", "circuits"), "a limits entry")
+    if ("path" in item) == ("pack" in item):
+        raise ConfigError("a limits entry names either `path: FILE` or `pack: NAME`", where)
+    circuits = circuit_names(item["circuits"], item.value_location("circuits"), ConfigError) \
+        if "circuits" in item else None
+    if "pack" in item:
+        name = expect_text(item["pack"], "`pack`", item.value_location("pack"))
+        return LimitSource(pack=str(name), location=name.location, circuits=circuits)
+    text = expect_text(item["path"], "`path`", item.value_location("path"))
+    return LimitSource(path=_limits_file(root, text), location=text.location, circuits=circuits)
+
+
+def _limits_file(root: Path, text: LocatedStr) -> Path:
+    """A limits file path inside the repository that names an existing file."""
+    path = _inside(root, text, text.location, "limits file")
+    if not _is_file(path, text.location, "limits file"):
+        raise ConfigError(f"limits file `{text}` does not exist", text.location)
+    return path
 
 
 def _listed_once(sources: list[LimitSource]) -> None:

@@ -162,12 +162,16 @@ def test_limits_waiver_errors_are_located(make, heater):
     assert caught.value.location.line == 12
 
 
-def test_limits_several_circuits_a_limit_applies_where_its_names_resolve(make, heater):
+def test_limits_several_circuits_an_unbound_limit_must_resolve_in_every_circuit(make, heater):
     board, ops = heater
     other = make.design([make.part("R9", nets=("rail", "gnd"), value=10.0, unit="ohm")], name="other")
     ops = {**ops, "other": [make.op(other, "nominal", {"rail": 1.0}, {"R9": (1.0, 0.1, 0.1)})]}
     text = "limits:\n  - id: rail\n    about: rail\n    check: voltage(rail) <= 1.5 V\n"
-    (finding,) = evaluate_limits([make.limits(text)], [board, other], ops, TODAY)[0]
+    with pytest.raises(LimitError) as caught:
+        evaluate_limits([make.limits(text)], [board, other], ops, TODAY)
+    assert "fails to resolve in `board`" in caught.value.message
+    assert any("`circuits: [other]`" in note for note in caught.value.notes)
+    (finding,) = evaluate_limits([make.limits(text + "    circuits: [other]\n")], [board, other], ops, TODAY)[0]
     assert finding.circuit == "other"
     text = "limits:\n  - id: rail\n    about: rail\n    check: voltage(rail) <= voltage(nowhere)\n"
     with pytest.raises(LimitError) as caught:
