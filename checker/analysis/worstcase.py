@@ -13,8 +13,8 @@ margin rules. Three methods, in order (docs/analysis.md says what each proves):
    derivative changed sign, until the corner is stable.
 3. **interior**: where a side can peak inside the box (a power, anything in a
    nonlinear circuit, an `or`), a bounded trust-region minimax descent from the worst
-   point found and from nominal, with finite-difference slopes (see `_interior`); all
-   descents of a case move in step, so each round is one batch of solves.
+   point found and from nominal, with finite-difference slopes (`checker.analysis.interior`);
+   all descents of a case move in step, so each round is one batch of solves.
 
 Every reported point is confirmed by the ordinary solver, and the nominal point is
 always a candidate, so a worst case is never better than nominal. A point without an
@@ -23,64 +23,33 @@ operating point is a failing outcome there, named by its corner.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, replace
+from dataclasses import replace
 from typing import Sequence
 
 import numpy as np
-from scipy.optimize import linprog
 
 from checker.analysis.boxpoints import BoxPoints, Solved
+from checker.analysis.interior import interior
 from checker.analysis.montecarlo import unsolved
 from checker.analysis.points import format_point
+from checker.analysis.search import STEP, Candidate, TargetSearch, combined, noise
 from checker.analysis.sensitivity import RESOLUTION, Key, SideSwing, Target, outcomes_at, side_swings
 from checker.analysis.stacked import stack_point
 from checker.analysis.tolerances import MAX_CORNER_PARTS, Tolerance, corner_label, toleranced
 from checker.design import Design, Netlist, OperatingPoint
 from checker.errors import DesignError, LimitError
 from checker.findings import Outcome
-from checker.limits.sides import Node, Split
+from checker.limits.sides import Split
 from checker.solver import Cache
 
 DEFAULT_VERTEX_VALUES = 16
 MAX_TOLERANCED_PARTS = 200  # per case, beyond the vertex bound: each corner-search round solves k + 1 points
 VERTEX_CHUNK = 8192  # vertices evaluated per batch
 CORNER_ROUNDS = 8  # re-linearisations per side before the corner search stops
-SEARCH_ROUNDS = 40  # rounds of the interior descent
-MIN_RADIUS = 1e-9  # a descent whose trust region (a share of each tolerance) falls below this has stopped
-MIN_RADIUS_NONLINEAR = 1e-6  # the same where solver noise (1e-9 relative) would swamp smaller steps
-LINEAR_SEARCH_SOLVES = 2_000_000  # per case: the interior search's budget of points (exact linear solves)
-NONLINEAR_SEARCH_SOLVES = 5_000  # per case: the same, for Newton-Raphson solves
-STEP = 1e-3  # finite-difference step, as a share of each value's tolerance
 NOMINAL = "nominal"
 METHOD_ORDER = {"vertices": 0, "corner-search": 1, "interior": 2}
 
 Drivers = tuple[tuple[str, float], ...]
-
-
-@dataclass
-class Candidate:
-    """A point of the box worth confirming for one target, and the method that found it."""
-
-    deviations: np.ndarray
-    method: str
-
-
-@dataclass
-class TargetSearch:
-    """What the search knows about one target in one case."""
-
-    target: Target
-    nominal: Outcome
-    candidates: list[Candidate] = field(default_factory=list)
-    side_low: np.ndarray | None = None  # each side's lowest key over all vertices
-    best_key: float = np.inf  # the check's lowest key seen at a vertex or corner
-    proved: bool = False
-    phase: str = "vertices"  # how the box's corners were searched: "vertices" or "corner-search"
-    searched_inside: bool = False  # an interior descent ran for this target
-
-    @property
-    def split(self) -> Split:
-        return self.target.item.split
 
 
 def worst_case(design: Design, points: Sequence[OperatingPoint], targets: Sequence[Target],
@@ -117,7 +86,7 @@ def case_worst(netlist: Netlist, point: OperatingPoint, targets: Sequence[Target
         for search in searches:
             search.phase = "corner-search"
         _corner_search(box, searches, swings)
-    _interior(box, searches)
+    interior(box, searches)
     return {s.target.key: _confirmed(box, s, swings[s.target.key]) for s in searches}
 
 
@@ -141,13 +110,13 @@ def _vertices(box: BoxPoints, searches: list[TargetSearch]) -> None:
         batch = box.evaluate(rows)
         for search in searches:
             keys = batch.side_keys(search.split)
-            combined = _combined(search, batch, keys)
-            i = _first_lowest(combined)
-            if combined[i] < best.get(id(search), (np.inf,))[0] - _noise(combined[i]):
-                best[id(search)] = (float(combined[i]), rows[i])
+            check_keys = combined(search, batch, keys)
+            i = _first_lowest(check_keys)
+            if check_keys[i] < best.get(id(search), (np.inf,))[0] - noise(check_keys[i]):
+                best[id(search)] = (float(check_keys[i]), rows[i])
             for s in range(len(search.split.sides)):
                 j = _first_lowest(keys[s])
-                if keys[s, j] < search.side_low[s] - _noise(keys[s, j]):
+                if keys[s, j] < search.side_low[s] - noise(keys[s, j]):
                     search.side_low[s] = keys[s, j]
                     side_best[id(search)][s] = rows[j]
     for search in searches:
@@ -157,26 +126,14 @@ def _vertices(box: BoxPoints, searches: list[TargetSearch]) -> None:
         search.candidates += [Candidate(r, "vertices") for r in side_best[id(search)] if r is not None]
         monotone = box.linear and not search.split.mixed_units and all(side.monotone for side in search.split.sides)
         bound = search.split.lower_bound(search.side_low)
-        search.proved = monotone and (search.split.conjunctive or bound >= key - _noise(key))
-
-
-def _combined(search: TargetSearch, batch, side_keys: np.ndarray) -> np.ndarray:
-    """The check's ranking key at every point of a batch: the side formula, or where the check mixes
-    units (whose rules rank by relative margin at each comparison's nearer end) the rules themselves."""
-    if search.split.mixed_units:
-        return batch.check_keys(search.target.item)
-    return search.split.combine(side_keys)
-
-
-def _noise(key: float) -> float:
-    return RESOLUTION * max(abs(key), 1e-300) if np.isfinite(key) else 0.0
+        search.proved = monotone and (search.split.conjunctive or bound >= key - noise(key))
 
 
 def _first_lowest(keys: np.ndarray) -> int:
     """The first index whose key is the lowest within solver noise: ties between points that differ
     only in values that do not matter go to the same point whatever the rounding."""
     lowest = float(np.min(keys))
-    return int(np.flatnonzero(keys <= lowest + _noise(lowest))[0])
+    return int(np.flatnonzero(keys <= lowest + noise(lowest))[0])
 
 
 # --- 2. corner search past the bound -------------------------------------------------------
@@ -190,7 +147,7 @@ def _corner_search(box: BoxPoints, searches: list[TargetSearch], swings: dict[Ke
             row = _stable_corner(box, search.split, side, signs)
             search.candidates.append(Candidate(row, "corner-search"))
         batch = box.evaluate(np.array([c.deviations for c in search.candidates]))
-        search.best_key = float(_combined(search, batch, batch.side_keys(search.split)).min())
+        search.best_key = float(combined(search, batch, batch.side_keys(search.split)).min())
 
 
 def _stable_corner(box: BoxPoints, split: Split, side: int, signs: np.ndarray) -> np.ndarray:
@@ -205,167 +162,6 @@ def _stable_corner(box: BoxPoints, split: Split, side: int, signs: np.ndarray) -
             break
         signs = np.where(flip, -signs, signs)
     return signs * box.fractions
-
-
-# --- 3. inside the box ---------------------------------------------------------------------
-
-@dataclass
-class Descent:
-    """One local search on one formula of one target's sides. `u` is the point with each value
-    over its tolerance (in [−1, 1]); `values` and `slopes` are the sides' keys there and their
-    derivatives in u; `radius` is the trust region (a share of each tolerance)."""
-
-    search: TargetSearch
-    formula: object
-    u: np.ndarray
-    key: float = np.inf
-    values: np.ndarray | None = None
-    slopes: np.ndarray | None = None
-    radius: float = 0.5
-
-
-def _conjuncts(tree) -> list:
-    """The parts of a formula that are minimised on their own: the children of a top-level min."""
-    if isinstance(tree, Node) and tree.op == "min":
-        return [part for child in tree.children for part in _conjuncts(child)]
-    return [tree]
-
-
-def _formula_keys(split: Split, formula, side_keys: np.ndarray) -> np.ndarray:
-    return Split(split.sides, formula, split.mixed_units).combine(side_keys)
-
-
-def _interior(box: BoxPoints, searches: list[TargetSearch]) -> None:
-    """Trust-region descents inside the box, all in step so that every round is one batch of solves.
-
-    Each round linearises the sides that decide the formula near the current point and takes the
-    step that minimises their maximum within the trust region, a small linear programme (the
-    minimax method of Madsen, Schjær-Jacobsen & Voldby, "Automated minimax design of networks",
-    IEEE Trans. Circuits and Systems 22(10), 1975 — from memory): this walks along the kinks of
-    `abs`, `or` and `not` where a plain gradient stalls, and down smooth peaks of a power.
-    Each unproved formula starts at the worst point found so far and, budget permitting, at
-    nominal; the closest targets first.
-    """
-    pending = sorted((s for s in searches if not s.proved), key=lambda s: s.best_key)
-    jobs = [(search, formula) for search in pending
-            for formula in ([search.split.tree] if search.split.mixed_units else _conjuncts(search.split.tree))]
-    if not jobs:
-        return
-    k = len(box.tolerances)
-    budget = LINEAR_SEARCH_SOLVES if box.linear else NONLINEAR_SEARCH_SOLVES
-    fits = max(1, budget // ((k + 1) * (SEARCH_ROUNDS + 1)))
-    starts = _worst_starts(box, jobs[:fits])
-    descents = [Descent(search, formula, start / box.fractions) for (search, formula), start in zip(jobs, starts)]
-    descents += [Descent(search, formula, np.zeros(k)) for search, formula in jobs[:max(0, fits - len(jobs))]]
-    descents = descents[:fits]
-    smallest = MIN_RADIUS if box.linear else MIN_RADIUS_NONLINEAR
-    _measure(box, descents, [d.u for d in descents], smallest)
-    for _ in range(SEARCH_ROUNDS):
-        moving = [d for d in descents if d.radius >= smallest]
-        if not moving:
-            break
-        steps = [_step(d) for d in moving]
-        before = [(d.u, d.key, d.values, d.slopes) for d in moving]
-        _measure(box, moving, [np.clip(d.u + p, -1.0, 1.0) for d, (p, _) in zip(moving, steps)], smallest)
-        for d, (p, predicted), (u, key, values, slopes) in zip(moving, steps, before):
-            gain = key - d.key
-            if not gain > 0.0:
-                d.u, d.key, d.values, d.slopes = u, key, values, slopes
-                d.radius /= 4.0
-            elif gain < 0.25 * predicted:
-                d.radius /= 4.0
-            elif gain > 0.75 * predicted and np.max(np.abs(p)) >= 0.99 * d.radius:
-                d.radius = min(2.0 * d.radius, 2.0)
-    for d in descents:
-        d.search.candidates.append(Candidate(d.u * box.fractions, "interior"))
-        d.search.searched_inside = True
-
-
-def _active(formula, values: np.ndarray, reach: float) -> list[int]:
-    """The sides that decide `formula` near here: the lowest child of a min, and every child of a
-    max that could reach its value within `reach` (the most a side can change in the trust region)."""
-    if not isinstance(formula, Node):
-        return [formula]
-    levels = [float(_value(child, values)) for child in formula.children]
-    if formula.op == "min":
-        return _active(formula.children[int(np.argmin(levels))], values, reach)
-    top = max(levels)
-    return sorted({s for child, level in zip(formula.children, levels) if level >= top - reach
-                   for s in _active(child, values, reach)})
-
-
-def _value(formula, values: np.ndarray) -> float:
-    if not isinstance(formula, Node):
-        return values[formula]
-    levels = [_value(child, values) for child in formula.children]
-    return min(levels) if formula.op == "min" else max(levels)
-
-
-def _step(d: Descent) -> tuple[np.ndarray, float]:
-    """The step within the trust region and the box that minimises the linearised maximum of the
-    deciding sides, and the decrease of the formula that linearisation predicts."""
-    reach = 2.0 * d.radius * float(np.max(np.sum(np.abs(d.slopes), axis=1)))
-    active = _active(d.formula, d.values, reach)
-    low = np.maximum(-1.0 - d.u, -d.radius)
-    high = np.minimum(1.0 - d.u, d.radius)
-    values, slopes = d.values[active], d.slopes[active]
-    if len(active) == 1:  # one smooth side: each value to the end of the region that lowers it
-        p = np.where(slopes[0] > 0.0, low, np.where(slopes[0] < 0.0, high, 0.0))
-        return p, d.key - float(values[0] + slopes[0] @ p)
-    count = low.size
-    cost = np.zeros(count + 1)
-    cost[-1] = 1.0  # minimise t subject to value_s + slope_s . p <= t
-    result = linprog(cost, A_ub=np.column_stack([slopes, -np.ones(len(active))]), b_ub=-values,
-                     bounds=list(zip(low, high)) + [(None, None)], method="highs")
-    if not result.success:
-        return np.zeros(count), 0.0
-    return result.x[:count], d.key - float(result.x[-1])
-
-
-def _worst_starts(box: BoxPoints, jobs: list) -> list[np.ndarray]:
-    """For each (target, formula): the candidate found so far with the lowest key of that formula."""
-    rows = [c.deviations for search, _ in jobs for c in search.candidates]
-    if not rows:
-        return [np.zeros(len(box.tolerances)) for _ in jobs]
-    batch = box.evaluate(np.array(rows), fallback=False)
-    starts, offset = [], 0
-    for search, formula in jobs:
-        count = len(search.candidates)
-        keys = _job_keys(search, formula, batch)[offset:offset + count]
-        starts.append(search.candidates[int(np.argmin(keys))].deviations if count else np.zeros(len(box.tolerances)))
-        offset += count
-    return starts
-
-
-def _job_keys(search: TargetSearch, formula, batch, rows: slice = slice(None)) -> np.ndarray:
-    """A descent's objective at the batch's points: its formula of the sides, or for a check that
-    mixes units the rules' own ranking of the whole check."""
-    if search.split.mixed_units:
-        return _combined(search, batch, np.empty(0))[rows]
-    key = _formula_keys(search.split, formula, batch.side_keys(search.split)[:, rows])
-    return np.where(np.isfinite(key), key, -1e300)
-
-
-def _measure(box: BoxPoints, descents: list[Descent], at: list[np.ndarray], smallest: float) -> None:
-    """Keys and slopes of every descent's sides at its point `at` (in u): one batch of (k + 1) rows
-    each, forward differences with a step below the trust region (but not below `smallest`)."""
-    k = len(box.tolerances)
-    rows, steps = [], []
-    for d, u in zip(descents, at):
-        h = min(STEP, max(d.radius / 8.0, smallest))
-        step = np.where(u + h <= 1.0, h, -h)
-        base = u * box.fractions
-        rows += [base, *(base + np.diag(step * box.fractions))]
-        steps.append(step)
-    batch = box.evaluate(np.array(rows), fallback=False)
-    for number, (d, u, step) in enumerate(zip(descents, at, steps)):
-        rows = slice(number * (k + 1), (number + 1) * (k + 1))
-        keys = batch.side_keys(d.search.split)[:, rows]
-        keys = np.where(np.isfinite(keys), keys, -1e300)
-        d.u, d.values = u, keys[:, 0]
-        with np.errstate(all="ignore"):  # a trial point without a solution (key −1e300) gives a huge slope
-            d.slopes = np.nan_to_num((keys[:, 1:] - keys[:, :1]) / step, nan=0.0, posinf=1e300, neginf=-1e300)
-        d.key = float(_job_keys(d.search, d.formula, batch, rows)[0])
 
 
 # --- confirmation by the ordinary solver ---------------------------------------------------
