@@ -10,12 +10,13 @@ from pathlib import Path
 from checker.errors import ConfigError, NodegateError, render, shown_path
 from checker.findings import Findings
 from checker.pipeline import run_check
-from checker.repo.baseline import compare, fail_exit_code
+from checker.repo.baseline import compare
 from checker.repo.config import Config, find_config, load_config
 from checker.repo.git import repo_location, revision_checkout
 from checker.report import summary_lines, write_reports
 from checker.report.annotations import render_annotations
 from checker.report.writer import stoppable
+from checker.verdict import Policy, judge
 
 DEFAULT_FORMATS = ("md", "html", "json")
 FILE_NAMES = {"md": "report.md", "html": "report.html", "json": "report.json",
@@ -37,17 +38,17 @@ def _check(args: argparse.Namespace) -> int:
     root = _source_root(config)
     formats = args.format or tuple(config.reports) or DEFAULT_FORMATS
     targets = _targets(config, formats, args.out)
-    write_reports(findings, targets, root)
+    verdict = judge(findings, Policy(args.fail_on, args.strict))
+    write_reports(findings, targets, root, verdict)
     if "annotations" in formats:
-        sys.stdout.write(render_annotations(findings, root))
-    for line in summary_lines(findings):
+        sys.stdout.write(render_annotations(findings, root, verdict))
+    lines = summary_lines(findings, verdict)
+    for line in lines[:-1]:
         print(line)
     for path in targets.values():
         print(f"report: {shown_path(path)}")
-    code = fail_exit_code(findings, args.fail_on, args.strict)
-    if code and args.strict and not fail_exit_code(findings, args.fail_on):
-        print("nodegate: fails under --strict: warnings and unused waivers count as failures.")
-    return code
+    print(lines[-1])  # the verdict, last, as every report states it
+    return verdict.exit_code
 
 
 def _progress():

@@ -1,4 +1,4 @@
-"""Compare a check with the same check on the base revision, and decide the exit code.
+"""Compare a check with the same check on the base revision (the exit policy is `checker.verdict`).
 
 A finding is identified across revisions by `Finding.key` (limit id, circuit, item).
 A finding *holds* when its status is "pass"; "fail", "warn" and "waived" all mean
@@ -20,10 +20,7 @@ from __future__ import annotations
 
 from dataclasses import replace
 
-from checker.errors import ConfigError
 from checker.findings import Finding, Findings
-
-FAIL_ON = ("any", "new")
 
 
 def _holds(finding: Finding) -> bool:
@@ -74,20 +71,3 @@ def compare(head: Findings, base: Findings | None, base_ref: str) -> Findings:
     )
     return replace(head, findings=marked, fixed=fixed, base_ref=base_ref)
 
-
-def fail_exit_code(findings: Findings, fail_on: str = "any", strict: bool = False) -> int:
-    """1 when the check must fail the pull request, else 0 (exit codes of OUTPUTS.md).
-
-    Counted: findings with status "fail" (with `strict`, also "warn"), expired waivers,
-    and with `strict` unused waivers. With `fail_on="new"` a failing finding counts
-    only when it is not "unchanged" against the base; without a base every failure
-    counts. Waiver problems count in both modes.
-    """
-    if fail_on not in FAIL_ON:
-        raise ConfigError(f"`--fail-on {fail_on}`: expected one of {', '.join(FAIL_ON)}")
-    statuses = ("fail", "warn") if strict else ("fail",)
-    failing = [f for f in findings.findings if f.status in statuses]
-    if fail_on == "new":
-        failing = [f for f in failing if f.change != "unchanged"]
-    waiver_problems = findings.waiver_notes if strict else findings.expired_waivers
-    return 1 if failing or waiver_problems else 0

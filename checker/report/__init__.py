@@ -2,7 +2,9 @@
 
 Every renderer returns text and does no I/O; `write_reports` renders all requested
 formats first and only then writes them, each atomically. Markdown, HTML and the
-terminal summary share one view of the findings (`checker.report.view`).
+terminal summary share one view of the findings (`checker.report.view`). Every renderer
+takes the run's one `checker.verdict.Verdict` (without it, that of `--fail-on any`) and
+states it, so no report can disagree with the exit code.
 """
 
 from checker.report.html import render_html

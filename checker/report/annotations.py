@@ -1,8 +1,9 @@
 """Workflow-command lines that make a CI run mark failing limits on the changed files.
 
 One line per finding that does not hold and is not waived, and per waiver problem:
-`::error file=PATH,line=N,col=N,title=TITLE::MESSAGE` (`::warning` for warnings and
-unused waivers). An `each` limit is placed at the part's line in its circuit, any
+`::error file=PATH,line=N,col=N,title=TITLE::MESSAGE` for what fails the check under the
+one verdict (`checker.verdict`), `::warning` for the rest (warnings, unused waivers, and
+with `--fail-on new` the failures the base already had). An `each` limit is placed at the part's line in its circuit, any
 other limit at its `id:` line in its limits file; paths are relative to `root`
 (the repository's top level, where the CI runner checked it out).
 
@@ -19,11 +20,11 @@ from pathlib import Path
 from checker.errors import Location
 from checker.findings import Finding, Findings, WaiverNote
 from checker.report.view import make_row
+from checker.verdict import Verdict, judge
 
 _DATA_ESCAPES = (("%", "%25"), ("\r", "%0D"), ("\n", "%0A"))
 _PROPERTY_ESCAPES = _DATA_ESCAPES + ((":", "%3A"), (",", "%2C"))
-_FINDING_LEVELS = {"fail": "error", "warn": "warning"}
-_WAIVER_LEVELS = {"expired": "error", "unused": "warning"}
+_REPORTED = ("fail", "warn")
 
 
 def escape_data(text: str) -> str:
@@ -71,25 +72,30 @@ def _finding_message(finding: Finding, base_ref: str | None) -> str:
     return text
 
 
-def _finding_line(finding: Finding, root: Path, base_ref: str | None) -> str:
+def _finding_line(finding: Finding, root: Path, base_ref: str | None, verdict: Verdict) -> str:
+    """An `::error` for a finding that fails the check, a `::warning` for one the policy lets through."""
     located = finding.item_location if finding.limit.each and finding.item_location else finding.limit.location
     title = f"nodegate {finding.limit.id}" + (f" on {finding.item}" if finding.item else "")
-    return _command(_FINDING_LEVELS[finding.status], located, title, _finding_message(finding, base_ref), root)
+    level = "error" if verdict.counts(finding) else "warning"
+    return _command(level, located, title, _finding_message(finding, base_ref), root)
 
 
-def _waiver_line(note: WaiverNote, root: Path) -> str:
+def _waiver_line(note: WaiverNote, root: Path, verdict: Verdict) -> str:
     waiver = note.waiver
     scope = "".join(f", {word} {value}" for word, value in (("part", waiver.part), ("case", waiver.case)) if value)
     if note.problem == "expired":
         message = f"the waiver of {waiver.limit}{scope} expired on {waiver.until.isoformat()}"
     else:
         message = f"the waiver of {waiver.limit}{scope} matches no failure; remove it"
-    return _command(_WAIVER_LEVELS[note.problem], waiver.location, f"nodegate waiver {waiver.limit}", message, root)
+    level = "error" if verdict.counts_note(note) else "warning"
+    return _command(level, waiver.location, f"nodegate waiver {waiver.limit}", message, root)
 
 
-def render_annotations(findings: Findings, root: Path) -> str:
-    """The workflow-command lines for `findings`, one per line, ending in a newline (empty if none)."""
-    lines = [_finding_line(f, root, findings.base_ref) for f in findings.findings
-             if f.status in _FINDING_LEVELS and f.outcomes]
-    lines += [_waiver_line(note, root) for note in findings.waiver_notes if note.problem in _WAIVER_LEVELS]
+def render_annotations(findings: Findings, root: Path, verdict: Verdict | None = None) -> str:
+    """The workflow-command lines for `findings`, one per line, ending in a newline (empty if none);
+    `::error` exactly for what fails the check under `verdict` (default: `--fail-on any`)."""
+    verdict = verdict or judge(findings)
+    lines = [_finding_line(f, root, findings.base_ref, verdict) for f in findings.findings
+             if f.status in _REPORTED and f.outcomes]
+    lines += [_waiver_line(note, root, verdict) for note in findings.waiver_notes]
     return "".join(line + "\n" for line in lines)

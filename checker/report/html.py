@@ -19,6 +19,7 @@ from checker.report.overview import margin_overview
 from checker.report.svg import Chart, margin_chart
 from checker.report.view import NO_TEXT, STATUS_WORDS, ReportView, Row, build_view, plural
 from checker.units import format_temperature, format_value
+from checker.verdict import Verdict
 
 
 @dataclass(frozen=True)
@@ -113,9 +114,9 @@ def _environment() -> jinja2.Environment:
     return env
 
 
-def render_html(findings: Findings) -> str:
+def render_html(findings: Findings, verdict: Verdict | None = None) -> str:
     """The whole report as one HTML document."""
-    view: ReportView = build_view(findings)
+    view: ReportView = build_view(findings, verdict)
     circuits = tuple((c, circuit_view(c, view.rows)) for c in findings.circuits)
     template = _environment().get_template("report.html.j2")
     return template.render(view=view, circuits=circuits, overview=margin_overview(view.rows), version=__version__)

@@ -1,7 +1,8 @@
 """The JSON report, for other tools: every limit x circuit x item x case, in SI floats.
 
 Shape (marker "schema": "nodegate-findings/1"): `analysis` (the tolerance mode, and
-samples and seed for Monte Carlo), `verdict` counts, `limits` (metadata of each limit
+samples and seed for Monte Carlo), `verdict` (the one verdict, `checker.verdict`: `passed`,
+`exit_code`, `headline`, `reasons`, the policy, and counts), `limits` (metadata of each limit
 once), `findings` (each with its outcomes and worst case, `drivers`: parts with the
 margin change over their tolerance band, and `fail_fraction` for Monte Carlo),
 `fixed` (with --base), `waiver_notes`, and `circuits` with the operating point of every case
@@ -24,6 +25,7 @@ from checker.errors import Location
 from checker.findings import Finding, Findings, Limit, Outcome, Waiver, WaiverNote
 from checker.report.solve import case_json, finite_or_none
 from checker.report.view import make_verdict, new_failures
+from checker.verdict import Verdict, judge
 
 SCHEMA = "nodegate-findings/1"
 
@@ -75,22 +77,26 @@ def note_json(note: WaiverNote) -> dict[str, Any]:
     return {"problem": note.problem, "waiver": waiver_json(note.waiver)}
 
 
-def verdict_json(findings: Findings) -> dict[str, Any]:
+def verdict_json(findings: Findings, verdict: Verdict) -> dict[str, Any]:
+    """The verdict as the other reports state it, with the policy it was decided under and the counts."""
     counts = {status: len(findings.with_status(status)) for status in ("pass", "fail", "warn", "waived")}
-    verdict = make_verdict(findings)
-    return {"passed": verdict.passed, "text": verdict.text, "findings": len(findings.findings), **counts,
+    return {"passed": verdict.passed, "exit_code": verdict.exit_code, "headline": verdict.headline,
+            "reasons": list(verdict.reasons), "text": make_verdict(findings, verdict).text,
+            "fail_on": verdict.policy.fail_on, "strict": verdict.policy.strict,
+            "findings": len(findings.findings), **counts,
             "expired_waivers": len(findings.expired_waivers), "unused_waivers": len(findings.unused_waivers),
             "new_failures": new_failures(findings), "fixed": len(findings.fixed)}
 
 
-def render_json(findings: Findings) -> str:
-    """The whole run as one JSON document, indented, ending in a newline."""
+def render_json(findings: Findings, verdict: Verdict | None = None) -> str:
+    """The whole run as one JSON document, indented, ending in a newline; `verdict` defaults to
+    that of `--fail-on any`, not strict."""
     limits = {f.limit.id: f.limit for f in findings.findings + findings.fixed}
     document = {
         "schema": SCHEMA,
         "base_ref": findings.base_ref,
         "analysis": _analysis(findings.analysis),
-        "verdict": verdict_json(findings),
+        "verdict": verdict_json(findings, verdict or judge(findings)),
         "limits": [limit_json(limit) for limit in limits.values()],
         "findings": [finding_json(f) for f in findings.findings],
         "fixed": [finding_json(f) for f in findings.fixed],

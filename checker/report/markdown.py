@@ -19,6 +19,7 @@ from dataclasses import dataclass, field
 
 from checker.findings import Findings
 from checker.report.view import NO_TEXT, STATUS_WORDS, NoteRow, ReportView, Row, build_view, plural
+from checker.verdict import Verdict
 
 # The size of one step's job summary the CI host accepts (1 MiB, rounded down to stay clear).
 JOB_SUMMARY_LIMIT = 1_000_000
@@ -213,12 +214,12 @@ def _fit(verdict: list[str], blocks: list[_Block], footer: list[str], max_bytes:
 
 
 def render_markdown(findings: Findings, max_bytes: int | None = None, *,
-                    full_report: str = FULL_REPORT_HINT) -> str:
+                    full_report: str = FULL_REPORT_HINT, verdict: Verdict | None = None) -> str:
     """The Markdown report; at most `max_bytes` UTF-8 bytes when given.
 
     `full_report` completes the truncation note's sentence "The full report is …".
     """
-    view = build_view(findings)
+    view = build_view(findings, verdict)
     verdict, blocks, footer = _verdict_lines(view), _blocks(view), [f"_{escape(view.caution)}_"]
     lines = verdict + [line for block in blocks for line in block.lines()] + footer
     if max_bytes is None or _size(lines) <= max_bytes:

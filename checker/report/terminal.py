@@ -9,6 +9,7 @@ from __future__ import annotations
 from checker.errors import uncommanding
 from checker.findings import Findings
 from checker.report.view import NoteRow, Row, build_view
+from checker.verdict import Verdict
 
 
 def _where(row: Row) -> str:
@@ -36,9 +37,9 @@ def _one_line(text: str) -> str:
     return uncommanding("".join(c if c.isprintable() else " " for c in text))
 
 
-def summary_lines(findings: Findings) -> list[str]:
+def summary_lines(findings: Findings, verdict: Verdict | None = None) -> list[str]:
     """One line per failing limit, then warnings and waiver problems, then the verdict."""
-    view = build_view(findings)
+    view = build_view(findings, verdict)
     lines = [_finding_line("FAIL", row) for row in view.failures]
     lines += [_note_line(note) for note in view.expired]
     lines += [_finding_line("WARN", row) for row in view.warnings]

@@ -14,6 +14,7 @@ from checker.analysis.points import reproduce_command
 from checker.analysis.tolerances import percent
 from checker.findings import Analysis, Finding, Findings, Outcome, Waiver, WaiverNote
 from checker.units import format_percent, format_temperature, format_value
+from checker.verdict import Verdict, judge
 
 CAUTION = ("nodegate supports, and does not replace, a qualified engineer's review "
            "and the applicable codes and standards.")
@@ -174,8 +175,9 @@ class NoteRow:
 
 
 @dataclass(frozen=True)
-class Verdict:
-    """`headline` is the part shown in bold; `details` and `base` follow it."""
+class VerdictText:
+    """The one verdict (`checker.verdict.Verdict`) as a report shows it: `headline` in bold,
+    then `details` (where it fails, what else counts, what else was found) and `base`."""
 
     passed: bool
     headline: str
@@ -191,7 +193,7 @@ class Verdict:
 
 @dataclass(frozen=True)
 class ReportView:
-    verdict: Verdict
+    verdict: VerdictText
     failures: tuple[Row, ...]
     warnings: tuple[Row, ...]
     waived: tuple[Row, ...]
@@ -278,32 +280,29 @@ def _worst_first(rows: list[Row]) -> tuple[Row, ...]:
     return tuple(sorted(rows, key=key))
 
 
-def make_verdict(findings: Findings) -> Verdict:
-    """The one-sentence verdict; `passed` matches exit code 0 (before --strict)."""
-    failures, expired = findings.failures, findings.expired_waivers
-    total = len(findings.findings)
-    details: list[str] = []
-    if failures:
-        headline = f"{plural(len(failures), 'limit')} {'fails' if len(failures) == 1 else 'fail'}"
-        details.append(f"in {plural(len({f.circuit for f in failures}), 'circuit')}")
-    elif expired:
-        headline = f"{plural(len(expired), 'waiver')} {'has' if len(expired) == 1 else 'have'} expired"
-    elif total:
-        holding = len(findings.with_status("pass"))
-        if holding < total:  # warnings or waivers remain: "all hold" would overstate it
-            headline = "no limit fails"
-            details.append(f"({holding} of {total} hold in {plural(len(findings.circuits), 'circuit')})")
-        else:
-            headline = f"all {plural(total, 'limit')} hold" if total > 1 else "the 1 limit holds"
-            details.append(f"in {plural(len(findings.circuits), 'circuit')}")
-    else:
-        headline = "no limits to check"
-    counts = [(len(findings.warnings), "warning", None), (len(findings.with_status("waived")), "waived", "waived"),
-              (len(expired) if failures else 0, "expired waiver", None),
-              (len(findings.unused_waivers), "unused waiver", None)]
-    details.extend(plural(n, word, many) for n, word, many in counts if n)
-    return Verdict(passed=not failures and not expired, headline=headline,
-                   details=tuple(details), base=_base_sentence(findings))
+def _where_details(findings: Findings, verdict: Verdict) -> list[str]:
+    """Which circuits fail the check, or how many limits hold where when it passes."""
+    counted = {f.circuit for f in findings.findings if verdict.counts(f)}
+    if counted:
+        return [f"in {plural(len(counted), 'circuit')}"]
+    total, holding = len(findings.findings), len(findings.with_status("pass"))
+    if not verdict.passed or not total:
+        return []
+    circuits = plural(len(findings.circuits), "circuit")
+    return [f"({holding} of {total} hold in {circuits})" if holding < total else f"in {circuits}"]
+
+
+def make_verdict(findings: Findings, verdict: Verdict) -> VerdictText:
+    """The verdict's words: its headline, its other reasons, then counts the reasons do not give
+    already (warnings and unused waivers count as reasons under --strict)."""
+    strict = verdict.policy.strict
+    counts = [(0 if strict else len(findings.warnings), "warning", None),
+              (len(findings.with_status("waived")), "waived", "waived"),
+              (0 if strict else len(findings.unused_waivers), "unused waiver", None)]
+    details = (_where_details(findings, verdict) + list(verdict.reasons[1:])
+               + [plural(n, word, many) for n, word, many in counts if n])
+    return VerdictText(passed=verdict.passed, headline=verdict.headline, details=tuple(details),
+                       base=_base_sentence(findings))
 
 
 def new_failures(findings: Findings) -> int:
@@ -320,12 +319,13 @@ def _base_sentence(findings: Findings) -> str:
             f"and fixes {len(findings.fixed)}.")
 
 
-def build_view(findings: Findings) -> ReportView:
-    """The shared view of a check run, for Markdown, HTML and the terminal."""
+def build_view(findings: Findings, verdict: Verdict | None = None) -> ReportView:
+    """The shared view of a check run, for Markdown, HTML and the terminal; without a verdict,
+    the one of the default policy (`--fail-on any`, not strict)."""
     paths = circuit_paths(findings)
     rows = [make_row(f, paths.get(f.circuit, "")) for f in findings.findings]
     return ReportView(
-        verdict=make_verdict(findings),
+        verdict=make_verdict(findings, verdict or judge(findings)),
         failures=_worst_first([r for r in rows if r.status == "fail"]),
         warnings=_worst_first([r for r in rows if r.status == "warn"]),
         waived=tuple(r for r in rows if r.status == "waived"),

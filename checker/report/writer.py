@@ -44,6 +44,7 @@ from checker.report.json_report import render_json
 from checker.report.junit import render_junit
 from checker.report.markdown import FULL_REPORT_HINT, JOB_SUMMARY_LIMIT, render_markdown
 from checker.report.sarif import render_sarif
+from checker.verdict import Verdict
 
 FORMATS = ("md", "html", "json", "junit", "sarif")
 EXTENSIONS = {"md": ".md", "html": ".html", "json": ".json", "junit": ".xml", "sarif": ".sarif"}
@@ -394,28 +395,31 @@ def _full_report_hint(targets: Mapping[str, Path]) -> str:
     return FULL_REPORT_HINT
 
 
-def _renderers(findings: Findings, targets: Mapping[str, Path], root: Path) -> dict[str, Callable[[], str]]:
+def _renderers(findings: Findings, targets: Mapping[str, Path], root: Path,
+               verdict: Verdict | None) -> dict[str, Callable[[], str]]:
     hint = _full_report_hint(targets)
     return {
-        "md": lambda: render_markdown(findings, JOB_SUMMARY_LIMIT, full_report=hint),
-        "html": lambda: render_html(findings),
-        "json": lambda: render_json(findings),
-        "junit": lambda: render_junit(findings),
-        "sarif": lambda: render_sarif(findings, root),
+        "md": lambda: render_markdown(findings, JOB_SUMMARY_LIMIT, full_report=hint, verdict=verdict),
+        "html": lambda: render_html(findings, verdict),
+        "json": lambda: render_json(findings, verdict),
+        "junit": lambda: render_junit(findings, verdict),
+        "sarif": lambda: render_sarif(findings, root, verdict),
     }
 
 
-def write_reports(findings: Findings, targets: Mapping[str, Path], root: Path) -> None:
+def write_reports(findings: Findings, targets: Mapping[str, Path], root: Path,
+                  verdict: Verdict | None = None) -> None:
     """Render every format named in `targets` (md, html, json, junit, sarif), then write them as one set.
 
     `root` is the repository: the anchor of every target inside it and what SARIF
     paths are relative to. The Markdown is cut to the CI job-summary limit
-    (JOB_SUMMARY_LIMIT bytes).
+    (JOB_SUMMARY_LIMIT bytes). Every report states `verdict` (without one, that of the
+    default policy), so none can disagree with the exit code.
     """
     unknown = sorted(set(targets) - set(FORMATS))
     if unknown:
         raise NodegateError(f"unknown report format `{unknown[0]}`; choose from {', '.join(FORMATS)}")
-    renderers = _renderers(findings, targets, root)
+    renderers = _renderers(findings, targets, root, verdict)
     texts = {name: renderers[name]() for name in targets}
     paths = {name: Path(os.path.abspath(path)) for name, path in targets.items()}
     write_set([Planned(_anchor_of(path.parent, root), path, texts[name], is_report(name))

@@ -1,7 +1,7 @@
 """Marking findings against the base revision, and the exit-code policy of `--fail-on`.
 
 The expected values are the definitions in checker/repo/baseline.py's table and in
-OUTPUTS.md (exit codes), applied by hand to small hand-built findings.
+docs/ci.md ("One verdict", checker/verdict.py), applied by hand to small hand-built findings.
 """
 
 from __future__ import annotations
@@ -14,7 +14,8 @@ from hypothesis import strategies as st
 
 from checker.errors import ConfigError
 from checker.findings import Finding, Findings, Limit, Outcome, Waiver, WaiverNote
-from checker.repo.baseline import compare, fail_exit_code
+from checker.repo.baseline import compare
+from checker.verdict import Policy, judge
 
 LIMITS = {
     "led": Limit(id="led-current", about="Status LED current", check="current(LED) in 5 mA .. 15 mA"),
@@ -151,14 +152,15 @@ WAIVER = Waiver(limit="res-power", reason="pulsed heater", until=datetime.date(2
     (("pass",), ("unchanged",), ("unused",), "any", True, 1),
     (("pass",), ("unchanged",), ("unused",), "new", True, 1),
 ])
-def test_fail_exit_code_policy(statuses, changes, notes, fail_on, strict, code) -> None:
+def test_exit_code_policy(statuses, changes, notes, fail_on, strict, code) -> None:
     items = tuple(Finding(limit=LIMITS["res"], circuit="bike_light", item=f"R{i}", status=s, change=c,
                           outcomes=(Outcome("nominal", 0.0, 0.0, -1.0, -1.0, "W", holds=False),))
                   for i, (s, c) in enumerate(zip(statuses, changes)))
     result = findings(*items, notes=tuple(WaiverNote(WAIVER, problem) for problem in notes))
-    assert fail_exit_code(result, fail_on, strict) == code
+    verdict = judge(result, Policy(fail_on, strict))
+    assert (verdict.exit_code, verdict.passed) == (code, code == 0)
 
 
 def test_unknown_fail_on_is_a_config_error() -> None:
     with pytest.raises(ConfigError, match="fail-on"):
-        fail_exit_code(findings(), "sometimes", False)
+        Policy("sometimes")

@@ -33,8 +33,8 @@ def section(text: str, title: str) -> list[str]:
 def test_verdict_comes_first_and_counts_every_status():
     text = render_markdown(bike_light())
     first = text.splitlines()[0]
-    assert first == ("**nodegate: 1 limit fails** in 1 circuit, 1 warning, 1 waived, "
-                     "1 expired waiver, 1 unused waiver")
+    assert first == ("**nodegate: 1 limit fails** in 1 circuit, 1 waiver has expired, 1 warning, 1 waived, "
+                     "1 unused waiver")
 
 
 def test_verdict_when_everything_holds():

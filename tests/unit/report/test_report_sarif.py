@@ -41,14 +41,15 @@ def test_rules_are_the_limits():
     assert rules["led-current"]["fullDescription"]["text"] == "current(LED_TAIL) in 15 mA .. 25 mA"
 
 
-def test_one_result_per_failing_or_warning_finding_at_the_limit_line():
+def test_one_result_per_finding_that_does_not_hold_at_the_limit_line():
     run = json.loads(render_sarif(bike_light(), Path(ROOT)))["runs"][0]
     results = run["results"]
-    assert [(r["ruleId"], r["level"]) for r in results] == [("led-current", "error"), ("driver-junction", "warning")]
+    assert [(r["ruleId"], r["level"], "suppressions" in r) for r in results] == [
+        ("led-current", "error", False), ("resistor-dissipation", "error", True), ("driver-junction", "warning", False)]
     location = results[0]["locations"][0]["physicalLocation"]
     assert location["artifactLocation"] == {"uri": "boards/tail_light/limits.yaml", "uriBaseId": "SRCROOT"}
     assert location["region"] == {"startLine": 3, "startColumn": 5}
-    assert run["tool"]["driver"]["rules"][results[1]["ruleIndex"]]["id"] == "driver-junction"
+    assert run["tool"]["driver"]["rules"][results[2]["ruleIndex"]]["id"] == "driver-junction"
     assert "cold_night" in results[0]["message"]["text"]
 
 
@@ -65,8 +66,9 @@ def test_each_limit_points_at_the_part_too():
 def test_baseline_states():
     results = json.loads(render_sarif(bike_light_with_base(), Path(ROOT)))["runs"][0]["results"]
     assert [(r["ruleId"], r["baselineState"]) for r in results] == \
-           [("led-current", "new"), ("driver-junction", "unchanged"), ("sense-ratio", "absent")]
-    assert results[2]["message"]["text"].endswith("fixed by this change (margin on the base: -0.02).")
+           [("led-current", "new"), ("resistor-dissipation", "new"), ("driver-junction", "unchanged"),
+            ("sense-ratio", "absent")]
+    assert results[3]["message"]["text"].endswith("fixed by this change (margin on the base: -0.02).")
     assert "baselineState" not in json.loads(render_sarif(bike_light(), Path(ROOT)))["runs"][0]["results"][0]
 
 
@@ -75,3 +77,22 @@ def test_uris_relative_to_root_or_absolute_outside(tmp_path):
     outside = tmp_path.parent / "elsewhere.yaml"
     uri, base = relative_uri(str(outside), tmp_path)
     assert base is None and uri.startswith("file:///")
+
+
+def test_waived_finding_is_an_accepted_external_suppression():
+    """SARIF 2.1.0 suppression object (§3.35, section number from memory; fields as in the schema
+    above): the waiver's reason is the justification, its end date a property."""
+    run = json.loads(render_sarif(bike_light(), Path(ROOT)))["runs"][0]
+    waived = next(r for r in run["results"] if r["ruleId"] == "resistor-dissipation")
+    assert waived["suppressions"] == [{"kind": "external", "status": "accepted",
+                                       "justification": "Pulsed drive, 10 % duty",
+                                       "properties": {"until": "2031-06-30"}}]
+    assert all("suppressions" not in r for r in run["results"] if r is not waived)
+
+
+def test_invocation_states_the_verdict():
+    run = json.loads(render_sarif(bike_light(), Path(ROOT)))["runs"][0]
+    invocation = run["invocations"][0]
+    assert (invocation["executionSuccessful"], invocation["exitCode"]) == (True, 1)
+    assert invocation["exitCodeDescription"].startswith("nodegate: 1 limit fails")
+    assert run["properties"]["nodegateVerdict"]["passed"] is False

@@ -44,7 +44,7 @@ def test_write_reports_writes_every_format(tmp_path):
 
 
 def test_nothing_is_written_when_a_renderer_fails(tmp_path, monkeypatch):
-    def broken(findings, root):
+    def broken(findings, root, verdict):
         raise RuntimeError("renderer bug")
     monkeypatch.setattr(writer, "render_sarif", broken)
     targets = {"md": tmp_path / "report.md", "sarif": tmp_path / "report.sarif"}
