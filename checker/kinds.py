@@ -87,6 +87,9 @@ _DIODE_PROPS = {
     "vf": Prop(VOLT, at=AMPERE), "vmax": Prop(VOLT), "imax": Prop(AMPERE),
 }
 
+# Transistor ratings: `imax` is the collector (bjt) or drain (mosfet) current rating, as `imax`
+# is the current rating of every kind; voltage ratings between two pins are named after the
+# pair as `tj_max` is after its quantity (`vce_max`, `vds_max`, `vgs_max`), magnitudes in V.
 KINDS: dict[str, Kind] = {k.name: k for k in (
     Kind("resistor", TWO_TERMINAL, (OHM,),
          {"tol": _TOL, "tempco": Prop(PER_KELVIN), "rating": Prop(WATT), "vmax": Prop(VOLT)}),
@@ -101,11 +104,12 @@ KINDS: dict[str, Kind] = {k.name: k for k in (
          {**_DIODE_PROPS, "vz": Prop(VOLT, at=AMPERE), "rz": Prop(OHM)},
          required=("vz",), exclusive=(("isat", "vf"),)),
     Kind("bjt", ("c", "b", "e"), (),
-         {"beta": Prop(DIMENSIONLESS), "isat": Prop(AMPERE), "imax": Prop(AMPERE), "pmax": Prop(WATT)},
+         {"beta": Prop(DIMENSIONLESS), "isat": Prop(AMPERE), "imax": Prop(AMPERE), "pmax": Prop(WATT),
+          "vce_max": Prop(VOLT)},
          flags=("npn", "pnp")),
     Kind("mosfet", ("d", "g", "s"), (),
          {"vth": Prop(VOLT), "k": Prop(AMPERE_PER_VOLT_SQUARED), "lambda": Prop(PER_VOLT),
-          "imax": Prop(AMPERE), "pmax": Prop(WATT)},
+          "imax": Prop(AMPERE), "pmax": Prop(WATT), "vds_max": Prop(VOLT), "vgs_max": Prop(VOLT)},
          flags=("nmos", "pmos")),
     Kind("regulator", ("in", "out", "gnd"), (),
          {"vout": Prop(VOLT), "dropout": Prop(VOLT), "iq": Prop(AMPERE), "tol": _TOL},

@@ -296,9 +296,7 @@ def _call(node: Call, scope: Scope) -> Typed:
     if node.name in MEASURES:
         if scope.static:
             raise scope.error(f"`where` chooses parts before any case is solved; it cannot read `{node.name}`", node.pos)
-        if len(node.args) != 1 or not isinstance(node.args[0], Ref):
-            raise scope.error(f"`{node.name}` takes one net or part name: `{node.name}(NAME)`", node.pos)
-        return _MEASURES[node.name](node.args[0], scope)
+        return _measure(node, scope)
     if node.name not in FUNCTIONS:
         raise scope.error(f"unknown function `{node.name}`", node.pos,
                           did_you_mean(node.name, FUNCTIONS + MEASURES)
@@ -344,26 +342,35 @@ def _sqrt(node: Call, arg: Typed, scope: Scope) -> Typed:
     return Typed(False, run, tuple(e // 2 for e in arg.dim))
 
 
-def _measured_part(ref: Ref, scope: Scope, measure: str, pins: bool = False) -> tuple[str, Part, str | None]:
-    """The part a measure reads, and the pin for `current(PART.PIN)`."""
+def _measure(node: Call, scope: Scope) -> Typed:
+    """A measure of names: one name, or for `voltage` two (a difference, so headroom rules need no subtraction)."""
+    arity = (1, 2) if node.name == "voltage" else (1,)
+    if len(node.args) not in arity or not all(isinstance(arg, Ref) for arg in node.args):
+        usage = ("a net, a part or a pin, or two nets or pins: `voltage(NAME)`, `voltage(A, B)`"
+                 if node.name == "voltage" else f"one net or part name: `{node.name}(NAME)`")
+        raise scope.error(f"`{node.name}` takes {usage}", node.pos)
+    if len(node.args) == 2:
+        return _voltage_between(node, scope)
+    return _MEASURES[node.name](node.args[0], scope)
+
+
+def _measured_part(ref: Ref, scope: Scope, measure: str) -> tuple[str, Part, str | None]:
+    """The part a measure reads, and the pin for `current(PART.PIN)` or `voltage(PART.PIN)`."""
     found = scope.find_part(ref)
     if found is None:
         raise scope.unresolved(ref, "part", scope.parts)
     name, part, used = found
+    pin_names = [pin for pin, _ in part.pins]
     if used == len(ref.names):
         if not part.two_terminal:
-            pin_names = ", ".join(pin for pin, _ in part.pins)
-            raise scope.error(f"`{measure}` of `{name}` needs a pin: it has pins {pin_names}", ref.pos,
-                              (f"write `{measure}({name}.PIN)`" if pins else "write `voltage(NET) - voltage(NET)`",))
+            raise scope.error(f"`{measure}` of `{name}` needs a pin: it has pins {', '.join(pin_names)}", ref.pos,
+                              (f"write `{measure}({name}.PIN)`",))
         return name, part, None
-    pin_names = [pin for pin, _ in part.pins]
-    if not pins:
-        raise scope.error(f"`{measure}` takes a net or a two-terminal part, not a pin", ref.positions[used],
-                          ("write `voltage(NET)` for the net on a pin",))
-    if used != len(ref.names) - 1 or ref.names[used] not in pin_names:
-        raise scope.error(f"part `{name}` has no pin `{'.'.join(ref.names[used:])}`", ref.positions[used],
-                          (f"its pins: {', '.join(pin_names)}",))
-    return name, part, ref.names[used]
+    pin = ".".join(ref.names[used:])
+    if pin not in pin_names:
+        raise scope.error(f"part `{name}` has no pin `{pin}`", ref.positions[used],
+                          did_you_mean(pin, pin_names) + (f"its pins: {', '.join(pin_names)}",))
+    return name, part, pin
 
 
 def _result(values, name: str):
@@ -374,24 +381,59 @@ def _result(values, name: str):
 
 
 def _voltage(ref: Ref, scope: Scope) -> Typed:
-    """voltage(NET): volts to ground; voltage(PART): across a two-terminal part, from -> to."""
-    net = ref.text
-    if net in scope.nets and not (ref.names[0] == "part" and scope.item is not None):
-        def read_net(values):
-            try:
-                return values.nets[net]
-            except KeyError:
-                raise Absent(net) from None
-        return Typed(False, read_net, VOLT)
+    """voltage(NET), voltage(PART.PIN): volts to ground; voltage(PART): across a two-terminal part, from -> to."""
+    return Typed(False, _volts(ref, scope, across=True), VOLT)
+
+
+def _voltage_between(node: Call, scope: Scope) -> Typed:
+    """voltage(A, B) = voltage(A) - voltage(B) for nets or pins: a regulator's headroom, a transistor's V_DS.
+
+    Still a difference of net voltages, so worst-case analysis treats it as linear (`sides`).
+    """
+    high, low = (_volts(ref, scope, across=False) for ref in node.args)
+    return Typed(False, lambda values: high(values) - low(values), VOLT)
+
+
+def _volts(ref: Ref, scope: Scope, across: bool) -> Callable:
+    """The reader of a net's or a pin's volts to ground; with `across`, also of a two-terminal part's voltage.
+
+    A pin reads the net its part connects it to (cases never rewire), and only in cases
+    where the part is fitted, like every other measure of a part.
+    """
+    if ref.text in scope.nets and not (ref.names[0] == "part" and scope.item is not None):
+        return _net_volts(ref.text)
     if scope.find_part(ref) is None:
         raise scope.unresolved(ref, "net or part", scope.nets | scope.parts.keys())
-    name, _, _ = _measured_part(ref, scope, "voltage")
-    return Typed(False, lambda values: _result(values, name).voltage, VOLT)
+    name, part, pin = _measured_part(ref, scope, "voltage")
+    if pin is not None:
+        return _pin_volts(name, dict(part.pins)[pin])
+    if not across:
+        raise scope.error(f"`{ref.text}` is a part: `voltage(A, B)` takes nets or pins", ref.pos,
+                          (f"write `voltage({ref.text}.PIN, ...)` or `voltage({ref.text})` for the voltage across it",))
+    return lambda values: _result(values, name).voltage
+
+
+def _pin_volts(name: str, net: str) -> Callable:
+    read_net = _net_volts(net)
+
+    def read(values):
+        _result(values, name)  # raises Absent where the part is not fitted
+        return read_net(values)
+    return read
+
+
+def _net_volts(net: str) -> Callable:
+    def read(values):
+        try:
+            return values.nets[net]
+        except KeyError:
+            raise Absent(net) from None
+    return read
 
 
 def _current(ref: Ref, scope: Scope) -> Typed:
     """current(PART): through a two-terminal part, from -> to; current(PART.PIN): into that pin."""
-    name, _, pin = _measured_part(ref, scope, "current", pins=True)
+    name, _, pin = _measured_part(ref, scope, "current")
     if pin is None:
         return Typed(False, lambda values: _result(values, name).current, AMPERE)
     return Typed(False, lambda values: _result(values, name).pins[pin], AMPERE)

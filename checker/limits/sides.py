@@ -219,7 +219,8 @@ def _number(node, scope: Scope):
         moved = node.names[-1] in MOVED_PROPERTIES and node.names != ("ambient",)
         return _leaf_of(node, scope, node.text, not moved)
     if isinstance(node, Call) and node.name in MEASURES:
-        return _leaf_of(node, scope, f"{node.name}({node.args[0].text})", node.name in LINEAR_MEASURES)
+        text = f"{node.name}({', '.join(arg.text for arg in node.args)})"  # voltage(A, B) too: still net voltages
+        return _leaf_of(node, scope, text, node.name in LINEAR_MEASURES)
     if isinstance(node, Call):
         args = [_number(arg, scope) for arg in node.args]
         if node.name in ("min", "max"):

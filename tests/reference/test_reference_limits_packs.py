@@ -10,6 +10,9 @@ Sources (cited beside each check):
   capacitor derating, ceramic: voltage factor 0.60.
 - JEDEC JESD51-2A: theta_JA = (T_J - T_A) / P, so T_J = T_A + P x theta_JA.
 - Junction derating tj_max - 40 K, at most 125 degC: EEE-INST-002, from memory.
+- Transistor absolute maximum ratings V_DS, V_GS (IEC 60747-8, field-effect transistors)
+  and V_CE (IEC 60747-7, bipolar transistors); the clauses not seen. Datasheets state a
+  p-channel or pnp rating with a minus sign (V_DS = -30 V): the rating is a magnitude.
 """
 
 import datetime
@@ -23,15 +26,15 @@ TODAY = datetime.date(2026, 1, 1)
 ZERO_C = 273.15  # K at 0 degC (SI Brochure, 9th ed., 2019)
 
 
-def solved(part, ambient_c, power, voltage=0.0, current=0.0):
-    """One part in one case at `ambient_c` degC absorbing `power` W."""
+def solved(part, ambient_c, power, voltage=0.0, current=0.0, nets=None):
+    """One part in one case at `ambient_c` degC absorbing `power` W; `nets` sets net volts (others 0 V)."""
     design = Design("b", "b", "b.circuit", "gnd", (part,),
                     (Netlist("b", "c", ambient_c + ZERO_C, "gnd", (part,)),))
     if part.two_terminal:
         result = PartResult(power, {"from": current, "to": -current}, voltage, current)
     else:
         result = PartResult(power, {pin: 0.0 for pin, _ in part.pins})
-    nets = {net: 0.0 for net in part.nets}
+    nets = {**{net: 0.0 for net in part.nets}, **(nets or {})}
     return design, {"b": [OperatingPoint(design.netlists[0], nets, {part.name: result})]}
 
 
@@ -123,6 +126,27 @@ def test_reference_limits_zener_power_limit_from_datasheet_thermal_data(ambient_
     zener = Part("Z1", "zener", (("from", "gnd"), ("to", "a")), props={"theta_ja": 300.0, "tj_max": 175.0 + ZERO_C})
     result = outcome("ratings", "rating-zener-junction-temp", zener, ambient_c, power)
     assert result.margin == pytest.approx(0.0, abs=1e-9)
+
+
+def transistor(kind, flag, **ratings):
+    pins = ("d", "g", "s") if kind == "mosfet" else ("c", "b", "e")
+    return Part("Q1", kind, tuple((pin, f"n_{pin}") for pin in pins), flags=frozenset({flag}), props=ratings)
+
+
+@pytest.mark.parametrize("part, limit_id, nets, value, margin", [
+    # An nmos off against 24 V: V_DS = 24 V against a 20 V rating, 4 V over.
+    (transistor("mosfet", "nmos", vds_max=20.0), "rating-mosfet-drain-source-voltage", {"n_d": 24.0}, 24.0, -4.0),
+    # A pmos high-side switch off: source at 12 V, drain at 0 V, V_DS = -12 V against |-30 V|.
+    (transistor("mosfet", "pmos", vds_max=30.0), "rating-mosfet-drain-source-voltage", {"n_s": 12.0}, 12.0, 18.0),
+    # A gate driven to 15 V against a +/- 12 V rating, 3 V over.
+    (transistor("mosfet", "nmos", vgs_max=12.0), "rating-mosfet-gate-source-voltage", {"n_g": 15.0}, 15.0, -3.0),
+    # A pnp off: emitter at 15 V, collector at 0 V, V_CE = -15 V against |-45 V|.
+    (transistor("bjt", "pnp", vce_max=45.0), "rating-bjt-collector-emitter-voltage", {"n_e": 15.0}, 15.0, 30.0),
+])
+def test_reference_limits_ratings_transistor_voltages_are_magnitudes(part, limit_id, nets, value, margin):
+    result = outcome("ratings", limit_id, part, 25, 0.0, nets=nets)
+    assert result.value == pytest.approx(value) and result.margin == pytest.approx(margin)
+    assert result.holds is (margin >= 0)
 
 
 def test_reference_limits_packs_skip_parts_without_the_property():
