@@ -1,6 +1,6 @@
 """The command line: argument parsing and exit codes, nothing else.
 
-Exit codes (OUTPUTS.md): 0 every error-severity limit holds, 1 a limit fails or a
+Exit codes (README.md, docs/ci.md): 0 every error-severity limit holds, 1 a limit fails or a
 waiver expired, 2 the input cannot be checked, 3 an internal error (a bug).
 
 Inputs come from pull requests, so a file system refusal (no space, no permission, a
@@ -117,7 +117,10 @@ def build_parser() -> argparse.ArgumentParser:
 
     explain = commands.add_parser("explain", help="show one limit: its check, each case's value and margin")
     explain.add_argument("limit_id", metavar="LIMIT_ID")
-    explain.add_argument("--config", type=Path, help="the configuration file (default: ./nodegate.yaml)")
+    explain.add_argument("directory", nargs="?", default=".", metavar="DIR",
+                         help="a folder of the hardware repository (default: .), as for check")
+    explain.add_argument("--config", type=Path,
+                         help="the configuration file (default: the nearest nodegate.yaml in DIR or above)")
 
     fmt = commands.add_parser("fmt", help="rewrite .circuit files in the canonical layout")
     fmt.add_argument("files", nargs="+", type=Path, metavar="FILE")

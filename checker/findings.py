@@ -131,7 +131,7 @@ class CircuitResult:
 
 @dataclass(frozen=True)
 class Analysis:
-    """How tolerances were analysed (RULES.md, "Tolerance analysis"): `mode` is "nominal",
+    """How tolerances were analysed (docs/analysis.md): `mode` is "nominal",
     "worst-case" or "monte-carlo"; `samples` and `seed` are set for "monte-carlo" only;
     `vertex_values` for "worst-case": every vertex of the tolerance box is solved when a
     case has at most this many toleranced values (docs/analysis.md)."""

@@ -1,4 +1,4 @@
-"""Tolerance analysis: nominal, worst-case corners and Monte Carlo (RULES.md, "Tolerance analysis").
+"""Tolerance analysis: nominal, worst-case corners and Monte Carlo (docs/analysis.md).
 
 `tolerances` says which values carry a tolerance and moves them; `sensitivity`
 measures how each tolerance moves each limit's margin; `worstcase` and `montecarlo`

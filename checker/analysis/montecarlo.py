@@ -114,7 +114,7 @@ def _solved(netlists: Sequence[Netlist], cache: Cache, points: Sequence[Operatin
 
 def unsolved(nominal: dict[Key, Outcome], message: str, corner: str) -> dict[Key, Outcome]:
     """Every limit of a case fails where the circuit has no operating point: value and bound unknown,
-    margin −inf, the solver's message kept (RULES.md: a verdict never passes what was not solved)."""
+    margin −inf, the solver's message kept (docs/analysis.md: a verdict never passes what was not solved)."""
     return {key: Outcome(o.case, math.nan, math.nan, -math.inf, -math.inf, o.unit, o.absolute, holds=False,
                          corner=corner, error=message) for key, o in nominal.items()}
 

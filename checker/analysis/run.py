@@ -1,7 +1,7 @@
 """Solve every circuit and evaluate every limit under the configured tolerance analysis.
 
-`analyse` is the evaluation step of a check run for all three modes of RULES.md
-("Tolerance analysis"): nominal, worst-case and Monte Carlo. It returns the same
+`analyse` is the evaluation step of a check run for all three modes of docs/analysis.md:
+nominal, worst-case and Monte Carlo. It returns the same
 Findings the reports render, with each outcome's corner, each finding's drivers and,
 for Monte Carlo, its failure fraction. Operating points kept for the reports are
 always the nominal ones.

@@ -1,4 +1,4 @@
-"""`nodegate explain LIMIT_ID [--config FILE]`: one limit, case by case, and the parts that drive it.
+"""`nodegate explain LIMIT_ID [DIR] [--config FILE]`: one limit, case by case, and the parts that drive it.
 
 Runs the configuration's tolerance analysis for this limit only (and only on the
 circuits it applies to), then prints, per circuit and item, a table of every case's
@@ -36,7 +36,7 @@ MAX_DRIVER_ROWS = 10
 
 
 def run(args: argparse.Namespace) -> int:
-    config = load_config(find_config(Path.cwd(), args.config))
+    config = load_config(find_config(Path(args.directory), args.config))
     files = load_limit_files(config)
     limit = find_limit(args.limit_id, files)
     designs = load_designs(config)

@@ -13,7 +13,7 @@ from scipy.special import wrightomega
 
 BOLTZMANN = 1.380649e-23  # J/K, exact by definition (SI Brochure, 9th ed., 2019, Table 1)
 ELEMENTARY_CHARGE = 1.602176634e-19  # C, exact by definition (same source)
-T_REFERENCE = 298.15  # K: 25 degC, where device parameters are given (LANGUAGE.md)
+T_REFERENCE = 298.15  # K: 25 degC, where device parameters are given (docs/models.md)
 EG_SILICON = 1.11  # eV, band gap used by the temperature law (Massobrio & Antognetti, 1993; from memory)
 XTI_SILICON = 3.0  # saturation-current temperature exponent of silicon (same source; from memory)
 GMIN = 1e-12  # S across every junction and channel, so a reverse-biased or off part never leaves a net without a slope

@@ -9,7 +9,7 @@ from checker.devices.base import LinearTwoTerminal, Role, prop_array, reject, va
 from checker.errors import DesignError
 from checker.units import format_value
 
-T_REFERENCE = 298.15  # K: 25 degC, the temperature device parameters are specified at (LANGUAGE.md)
+T_REFERENCE = 298.15  # K: 25 degC, the temperature device parameters are specified at (docs/models.md)
 
 
 def _conductance_or_short(resistance: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

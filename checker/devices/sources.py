@@ -1,6 +1,6 @@
 """Independent sources and loads.
 
-Sign convention (LANGUAGE.md): a voltage source fixes v(from) - v(to); a current
+Sign convention (docs/models.md): a voltage source fixes v(from) - v(to); a current
 (source or load) is the current through the part from `from` to `to`.
 """
 

@@ -17,7 +17,7 @@ from checker.language.parts import check_complete, primary_value, property_value
 from checker.language.syntax import Case, Override, declared
 from checker.units import KELVIN, ZERO_CELSIUS
 
-DEFAULT_AMBIENT = ZERO_CELSIUS + 25.0  # K: the reference temperature of LANGUAGE.md
+DEFAULT_AMBIENT = ZERO_CELSIUS + 25.0  # K: the reference temperature of docs/models.md
 MAX_CASES = 1000
 
 

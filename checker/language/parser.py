@@ -6,6 +6,7 @@ error becomes a `CircuitSyntaxError` at the offending token, in plain words.
 
 from __future__ import annotations
 
+import re
 import threading
 from importlib import resources
 
@@ -22,7 +23,7 @@ _STATE = threading.local()  # per-parse memory of the post-lexer, read when repo
 
 
 class _Continuation:
-    """Drops line ends inside parentheses and after a trailing `,` (LANGUAGE.md, lexical rules) or `:`.
+    """Drops line ends inside parentheses and after a trailing `,` (docs/language.md, "Lines, comments, strings") or `:`.
 
     It also remembers, for error messages, the blocks whose `{` is not yet closed (each as its
     `block` keyword and name) and the line a statement continues from, until that statement ends.
@@ -122,7 +123,7 @@ def _syntax_error(error: UnexpectedInput, source: Source) -> CircuitSyntaxError:
                                   "after its last statement", source.at(blocks[-1][0]))
     if isinstance(error, UnexpectedCharacters):
         return CircuitSyntaxError(_character_message(error), location)
-    hint = _match_example(error)
+    hint = _zero_net(error, source, open_parens) or _match_example(error)
     message = hint or _token_message(error)
     notes = ()
     if continued is not None and location.line > continued.line:
@@ -165,6 +166,23 @@ def _character_message(error: UnexpectedCharacters) -> str:
     if char.isprintable() and not char.isspace():
         return f"unexpected character `{char}`"
     return f"unexpected character U+{ord(char):04X}"
+
+
+# What stands just before a net: `from`, `to`, `ground`, or `PIN:` inside a part's parentheses.
+_BEFORE_NET = re.compile(r"(?:\b(?:from|to|ground)|(?P<pin>[A-Za-z0-9_]\s*:))\s*$")
+
+
+def _zero_net(error: UnexpectedInput, source: Source, open_parens: list) -> str | None:
+    """The hint for `0` written where a net goes: SPICE habit, where node 0 is the ground,
+    while here the reference net is any name declared by `ground`."""
+    token = getattr(error, "token", None)
+    if not isinstance(token, Token) or token.type != "NUMBER" or token.value.strip("0") not in ("", "."):
+        return None
+    before = _BEFORE_NET.search(source.lines[token.line - 1][:token.column - 1])
+    if before is None or (before.group("pin") and not open_parens):
+        return None
+    return f"a net is a name, not `{token.value}`: name the reference net with `ground NAME` (say `ground gnd`) " \
+           "and connect to that name"
 
 
 def _match_example(error: UnexpectedInput) -> str | None:

@@ -7,12 +7,14 @@ absent; the devices fill their defaults.
 
 from __future__ import annotations
 
+from lark import Tree
+
 from checker.design import Part
-from checker.errors import DesignError, Location, UnitError, did_you_mean
+from checker.errors import DesignError, Location, NodegateError, UnitError, did_you_mean
 from checker.kinds import KINDS, VALUE_UNITS, Kind
 from checker.language.expressions import Scope, dim_text, evaluate
 from checker.language.syntax import Expr, Name, PartStatement, Prop
-from checker.units import DIMENSIONLESS, dim_name
+from checker.units import DIMENSIONLESS, Dim, dim_name, parse_unit
 
 
 def unknown_kind(kind: Name, blocks) -> DesignError:
@@ -126,7 +128,36 @@ def _checked(quantity, dim, temperature: bool, what: str, expr: Expr) -> float:
     if dim == DIMENSIONLESS and not temperature:
         expected = "a plain number, %, or ppm"
     got = "has no unit" if dim_text(quantity) == "dimensionless" else f"is in {dim_text(quantity)}"
+    slip = _divided_unit(expr, dim)
+    if slip is not None:
+        raise UnitError(f"{what} {slip[0]}; expected {expected}", expr.location, (slip[1],))
     raise UnitError(f"{what} {got}; expected {expected}", expr.location)
+
+
+def _divided_unit(expr: Expr, dim: Dim) -> tuple[str, str] | None:
+    """`1/4 W` reads as 1 / (4 W), in 1/W: what it came out as and how to write the intended
+    value, in the unit as the user wrote it (the SI base units would hide the slip). The
+    message names tokens only, so `nodegate fmt` never changes it; the note quotes the source.
+
+    Only for a plain number divided by a number with the expected unit; None otherwise.
+    """
+    tree = expr.tree
+    if tree.data != "div" or not isinstance(tree.children[1], Tree) or tree.children[1].data != "quantity":
+        return None
+    left, (number, unit) = tree.children[0], tree.children[1].children
+    if unit is None or parse_unit(str(unit))[1] != dim:
+        return None
+    try:
+        numerator = evaluate(Expr(left, expr.source), {})
+    except NodegateError:  # names or deeper slips: the plain message says enough
+        return None
+    if numerator.dim != DIMENSIONLESS or numerator.absolute:
+        return None
+    numerator_text = expr.source.text[left.meta.start_pos:left.meta.end_pos]
+    if left.data not in ("quantity", "ref", "call"):
+        numerator_text = f"({numerator_text})"
+    came_out = f"is in 1/{unit}: the `/` divides by the whole `{number} {unit}`"
+    return came_out, f"write `{numerator.value / float(number):.4g} {unit}` or `({numerator_text}/{number}) {unit}`"
 
 
 def check_complete(kind: Kind, part: Part, location: Location) -> None:

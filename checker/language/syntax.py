@@ -114,7 +114,7 @@ class Case:
 
 Statement = Circuit | Ground | Let | Use | PartStatement | Block | Case
 
-# LANGUAGE.md, lexical rules: these never name a let, part, net, port, block or case.
+# Reserved words (docs/language.md, "Names"): these never name a let, part, net, port, block or case.
 RESERVED = frozenset(KINDS) | {"circuit", "ground", "let", "use", "block", "case",
                                "from", "to", "absent", "ambient"}
 

@@ -1,4 +1,4 @@
-"""Limit files and built-in packs: YAML in, `Limit` and `Waiver` records out (RULES.md, "A limits file").
+"""Limit files and built-in packs: YAML in, `Limit` and `Waiver` records out (docs/limits.md, "Files").
 
 Only the shape is checked here (keys, types, ids, dates, `circuits` lists); expressions
 are parsed and their names, and the circuit names of bindings, resolved later against the
@@ -122,7 +122,7 @@ def _limit(entry: LocatedDict, source: str, binding: tuple[str, ...] | None) -> 
     ident = _text(entry, "id", "a limit")
     if not _KEBAB.fullmatch(ident):
         raise LimitError(f"limit id `{ident}` must be kebab-case: lower-case words joined by `-`", ident.location)
-    about = _text(entry, "about", f"limit `{ident}`", False)  # optional, as in RULES.md's own example
+    about = _text(entry, "about", f"limit `{ident}`", False)  # optional: reports then show the check
     if about is not None:
         about = _plain(about, "about")
         if "\n" in about.strip():

@@ -1,4 +1,4 @@
-"""Margins of comparisons, exactly as RULES.md ("Margins") defines them.
+"""Margins of comparisons, as docs/limits.md ("Margins") defines them.
 
 `a <= b` -> b - a; `a >= b` -> a - b; `x in lo .. hi` -> min(x - lo, hi - x);
 `and` -> the smaller margin, `or` -> the larger; `not` flips the sign. Strict `<`

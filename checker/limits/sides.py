@@ -1,6 +1,6 @@
 """A check split into the one-sided comparisons that decide it, for tolerance analysis.
 
-By the margin rules (RULES.md, "Margins") every check's margin is a min/max formula
+By the margin rules (docs/limits.md, "Margins") every check's margin is a min/max formula
 over one-sided margins: `x in lo .. hi` is min(x − lo, hi − x), `and` is min, `or` is
 max, `not` swaps the two. `abs`, `min` and `max` inside an expression split the same
 way, pushed through `+`, `−` and multiplication by constants with their signs:

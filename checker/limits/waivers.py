@@ -1,8 +1,8 @@
 """Waivers: which failing outcomes are accepted, and which waivers have expired or matched nothing.
 
-RULES.md: a waiver names a limit, optionally a part and a case that narrow it, a
-reason and an end date; nodegate adds `circuits`, which narrows it the same way
-(docs/limits.md). A failure in a case the waiver does not cover still fails.
+A waiver names a limit, optionally a part and a case that narrow it, a reason
+and an end date, and optionally `circuits`, which narrows it the same way
+(docs/limits.md, "Waivers"). A failure in a case the waiver does not cover still fails.
 An expired waiver waives nothing and is reported (exit 1); a waiver that matched
 no failing outcome is reported as unused (a warning).
 """

@@ -57,8 +57,13 @@ class Config:
 
 
 def find_config(directory: Path, config: Path | None) -> Path:
-    """The configuration file: `--config`, else DIR/nodegate.yaml (or .yml); a path the system
-    refuses (a name too long, no permission) is a ConfigError naming it."""
+    """The configuration file: `--config`, else the nearest nodegate.yaml (or .yml) in DIR or a
+    folder above it, so a command run from inside a board's folder finds the repository's.
+
+    The walk stops at the git top level (a folder holding `.git`) or the filesystem root:
+    a configuration above the repository belongs to something else. A path the system
+    refuses (a name too long, no permission) is a ConfigError naming it.
+    """
     try:
         return _find_config(directory, config)
     except OSError as error:
@@ -76,10 +81,34 @@ def _find_config(directory: Path, config: Path | None) -> Path:
         hint = "give its folder, or name it with --config" if directory.suffix in (".yaml", ".yml") else \
             "`nodegate solve FILE` prints the operating point of one circuit file"
         raise ConfigError(f"`{directory}` is a file; `nodegate check` takes the repository's folder", notes=(hint,))
-    for name in CONFIG_NAMES:
-        if (directory / name).is_file():
-            return directory / name
-    raise ConfigError(f"no nodegate.yaml in `{directory}`; run `nodegate init {directory}` to start one")
+    if not directory.is_dir():
+        raise ConfigError(f"folder `{directory}` does not exist")
+    folders = _folders_upward(directory)
+    for folder in folders:
+        for name in CONFIG_NAMES:
+            if (folder / name).is_file():
+                return folder / name
+    raise ConfigError(f"no nodegate.yaml in `{directory}`{_above(folders)}; "
+                      f"run `nodegate init {directory}` to start one")
+
+
+def _folders_upward(directory: Path) -> list[Path]:
+    """DIR as given, then each folder above it, up to and including the first holding `.git`."""
+    folders = [directory]
+    for folder in Path(os.path.abspath(directory)).parents:
+        if (folders[-1] / ".git").exists():
+            break
+        folders.append(folder)
+    return folders
+
+
+def _above(folders: list[Path]) -> str:
+    """Where the walk went above DIR, in words for the error."""
+    if len(folders) == 1:
+        return " (a git top level, so no folder above it was searched)"
+    top = folders[-1]
+    why = "the git top level" if (top / ".git").exists() else "the filesystem root"
+    return f" nor in any folder above it up to `{top}` ({why})"
 
 
 def load_config(path: Path) -> Config:
