@@ -89,7 +89,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     check = commands.add_parser("check", help="solve every circuit in every case, evaluate the limits, write reports")
     check.add_argument("directory", nargs="?", default=".", help="the hardware repository (default: .)")
-    check.add_argument("--config", type=Path, help="the configuration file (default: DIR/nodegate.yaml)")
+    check.add_argument("--config", type=Path, help="the configuration file (default: the nearest nodegate.yaml in DIR or above)")
     check.add_argument("--base", type=_revision, metavar="GIT_REF", help="compare against the same check on this git revision")
     check.add_argument("--fail-on", choices=("new", "any"), default="any",
                        help="with --base: fail on any failing limit (default) or only on those this change introduces")

@@ -3,7 +3,7 @@
 The language validates every part against this table; devices, limits and reports
 look kinds up here too, so a new kind is one row here plus one device class.
 Dimensions are exponents over SI base units (see `checker.units`); temperatures
-are kelvin. The table follows LANGUAGE.md, "Part kinds (core)".
+are kelvin. The table is documented in docs/language.md, "Part kinds".
 """
 
 from __future__ import annotations
@@ -73,7 +73,7 @@ class Kind:
         return tuple(self.props) + tuple(COMMON_PROPS) + ("tag",)
 
 
-# Every part may carry these (LANGUAGE.md); `tag = WORD` is handled apart, as a word.
+# Every part may carry these (docs/language.md); `tag = WORD` is handled apart, as a word.
 COMMON_PROPS: dict[str, Prop] = {
     "theta_ja": Prop(KELVIN_PER_WATT, allowed=lambda value: value > 0.0,
                      rule="is above 0 K/W: a junction is never colder than the air around it"),

@@ -1,6 +1,6 @@
-"""What `nodegate solve` prints: a terminal table or JSON (OUTPUTS.md, `solve --format json`).
+"""What `nodegate solve` prints: a terminal table or JSON (the `solve --format json` shape in README.md).
 
-Sign convention of LANGUAGE.md: a two-terminal part's voltage is `from` minus `to`,
+Sign convention (docs/language.md): a two-terminal part's voltage is `from` minus `to`,
 its current flows `from` -> `to`, power = voltage x current (absorbed > 0); a
 multi-terminal part shows the current into each pin and the power it absorbs.
 """
@@ -46,7 +46,7 @@ def case_json(point: OperatingPoint) -> dict[str, Any]:
 
 
 def render_solve_json(circuit_name: str, points: Sequence[OperatingPoint], at: Point | None = None) -> str:
-    """`{"circuit": NAME, "cases": [...]}` as OUTPUTS.md shows it, indented; no final newline (for print).
+    """`{"circuit": NAME, "cases": [...]}` as the README shows it, indented; no final newline (for print).
 
     With `at` (`solve --at`), each case also has `"at": {NAME: deviation}` (fractions), right after `case`.
     """

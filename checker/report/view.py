@@ -85,7 +85,7 @@ def drivers_text(finding: Finding) -> str:
 
 
 def analysis_sentence(analysis: Analysis) -> str:
-    """How the margins were found, for the report header (RULES.md, "Tolerance analysis")."""
+    """How the margins were found, for the report header (docs/analysis.md)."""
     if analysis.mode == "worst-case":
         return ("Tolerance analysis: worst case. Each margin is the lowest found over the tolerance box, where "
                 "every toleranced value may sit anywhere in its band. When a case has few enough toleranced "
