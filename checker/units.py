@@ -142,6 +142,8 @@ def format_value(value: float, symbol: str, digits: int = 3) -> str:
         return f"{value} {symbol}".strip()
     if value == 0:
         return f"0 {symbol}".strip()
+    if symbol in UNPREFIXED:  # `-382 m%` means nothing: these units take no prefix
+        return f"{_significant(value, digits)} {symbol}"
     rounded = float(f"{value:.{digits - 1}e}")  # round first so 999.7 becomes 1.00 k, not 1000
     if not _ENG_PREFIXES[-1][0] <= abs(rounded) < 1000 * _ENG_PREFIXES[0][0]:
         # below the smallest prefix or past the largest: plain scientific notation
@@ -152,18 +154,34 @@ def format_value(value: float, symbol: str, digits: int = 3) -> str:
     return f"{scaled:.{decimals}f} {prefix}{symbol}".rstrip()
 
 
+def _significant(number: float, digits: int) -> str:
+    """`number` with `digits` significant figures in plain notation (`0.0038`, `125`), scientific
+    notation only far from one (below 1e-4 or from 1e6 on), where plain digits would run long."""
+    if number == 0 or not math.isfinite(number):
+        return f"{number:g}"
+    if not 1e-4 <= abs(number) < 1e6:
+        return f"{number:.{digits - 1}e}"
+    rounded = float(f"{number:.{digits - 1}e}")
+    decimals = max(digits - 1 - int(math.floor(math.log10(abs(rounded)))), 0)
+    return f"{rounded:.{decimals}f}"
+
+
 def format_percent(fraction: float) -> str:
-    """A fraction as a percentage with one decimal, `-12.7 %`; beyond ±1e6 % in scientific notation,
-    `-6.26e+270 %`, so that an absurd design (a 1e-300 ohm resistor) prints a short line, not 300 digits."""
+    """A fraction as a percentage, never with an SI prefix: one decimal from 1 % on (`-12.7 %`),
+    two significant figures below (`-0.38 %`, `0.0012 %`) so a small margin does not read as
+    `0.0 %`; beyond ±1e6 % in scientific notation, `-6.26e+270 %`, so that an absurd design
+    (a 1e-300 ohm resistor) prints a short line, not 300 digits."""
     percent = fraction * 100
     if math.isfinite(percent) and abs(percent) >= 1e6:
         return f"{percent:.3g} %"
+    if math.isfinite(percent) and 0 < abs(percent) < 1:
+        return f"{percent:.2g} %"
     return f"{percent:.1f} %"
 
 
-def format_temperature(kelvin: float) -> str:
-    """An absolute temperature in degrees Celsius: `85.0 °C`."""
-    return f"{kelvin - ZERO_CELSIUS:.1f} °C"
+def format_temperature(kelvin: float, decimals: int = 1) -> str:
+    """An absolute temperature in degrees Celsius: `85.0 °C` (more `decimals` where two must differ)."""
+    return f"{kelvin - ZERO_CELSIUS:.{decimals}f} °C"
 
 
 def parse_unit(text: str) -> tuple[float, Dim, bool]:

@@ -29,7 +29,7 @@ from checker.pipeline import analysis_of, load_designs, load_limit_files
 from checker.repo.config import find_config, load_config
 from checker.solver import Cache, solve
 from checker.report.view import (NO_TEXT, STATUS_WORDS, analysis_sentence, case_label, format_fraction,
-                                 format_margin, format_number, format_relative, waiver_text)
+                                 format_margin, format_pair, format_relative, waiver_text)
 
 PLAIN_BAND = 0.01  # ±1 % on every value when a circuit declares no tolerance
 MAX_DRIVER_ROWS = 10
@@ -77,8 +77,8 @@ def case_table(finding: Finding) -> list[str]:
     methods = any(o.method for o in finding.outcomes)
     rows = [["case", "value", "bound", "margin", "relative", "status"] + (["found by"] if methods else [])]
     for o in finding.outcomes:
-        row = [case_label(o), format_number(o.value, o.unit, o.absolute),
-               format_number(o.bound, o.unit, o.absolute), format_margin(o.margin, o.unit, o.absolute),
+        row = [case_label(o), *format_pair(o.value, o.bound, o.unit, o.absolute, o.relative),
+               format_margin(o.margin, o.unit, o.absolute),
                format_relative(o.relative), "holds" if o.holds else "fails"]
         if methods:
             row.append(o.method.replace("-", " ") + (", proved" if o.proved else ", searched"))

@@ -15,6 +15,7 @@ from checker.design import OperatingPoint, PartResult
 from checker.units import ZERO_CELSIUS, format_temperature, format_value
 
 DASH = "—"
+DIGITS = 4  # significant figures in the table: a reader compares nets and parts to a few parts in a thousand
 Point = Sequence[tuple[str, float]]  # (value name, deviation as a fraction), as `solve --at` moved them
 
 
@@ -70,11 +71,11 @@ def _part_rows(point: OperatingPoint) -> list[list[str]]:
     for name, result in point.parts.items():
         if result.voltage is not None:
             current = result.current if result.current is not None else math.nan
-            rows.append([name, format_value(result.voltage, "V"), format_value(current, "A"),
-                         format_value(result.power, "W")])
+            rows.append([name, format_value(result.voltage, "V", DIGITS), format_value(current, "A", DIGITS),
+                         format_value(result.power, "W", DIGITS)])
         else:
-            rows.append([name, DASH, DASH, format_value(result.power, "W")])
-            rows += [[f"  into {pin}", "", format_value(i, "A"), ""] for pin, i in result.pins.items()]
+            rows.append([name, DASH, DASH, format_value(result.power, "W", DIGITS)])
+            rows += [[f"  into {pin}", "", format_value(i, "A", DIGITS), ""] for pin, i in result.pins.items()]
     return rows
 
 
@@ -82,7 +83,7 @@ def _case_block(point: OperatingPoint) -> list[str]:
     plural = "" if point.iterations == 1 else "s"
     head = (f"case {point.case}: ambient {format_temperature(point.ambient)}, "
             f"{point.strategy}, {point.iterations} iteration{plural}")
-    nets = [["net", "voltage"]] + [[net, format_value(v, "V")] for net, v in point.nets.items()]
+    nets = [["net", "voltage"]] + [[net, format_value(v, "V", DIGITS)] for net, v in point.nets.items()]
     return [head, ""] + align(nets, {1}) + [""] + align(_part_rows(point), {1, 2, 3})
 
 

@@ -30,16 +30,35 @@ def plural(count: int, word: str, many: str | None = None) -> str:
     return f"{count} {word if count == 1 else (many or word + 's')}"
 
 
-def format_number(value: float, unit: str, absolute: bool = False) -> str:
-    """A value or bound: temperatures in °C, dimensionless numbers plain, others with SI prefixes;
+MAX_DIGITS = 9  # significant figures a near comparison may take so that value and bound differ
+NEAR = 0.05  # a relative margin below this (failing included) is a near comparison
+
+
+def format_number(value: float, unit: str, absolute: bool = False, digits: int = 3) -> str:
+    """A value or bound: temperatures in °C, dimensionless numbers plain, others with SI prefixes,
+    to `digits` significant figures (a temperature keeps `digits - 2` decimals: `85.0 °C`);
     a dash for NaN and infinities, which no reader should see as `nan` or `inf`."""
     if not math.isfinite(value):
         return NO_TEXT
     if absolute:
-        return format_temperature(value)
+        return format_temperature(value, max(digits - 2, 1))
     if not unit:
-        return f"{value:.3g}"
-    return format_value(value, unit)
+        return f"{value:.{digits}g}"
+    return format_value(value, unit, digits)
+
+
+def format_pair(value: float, bound: float, unit: str, absolute: bool = False,
+                relative: float = math.nan) -> tuple[str, str]:
+    """Value and bound of one comparison. A failing or near one (relative margin below NEAR, or
+    undefined) takes more significant figures, up to MAX_DIGITS, until the two texts differ:
+    never `1.62 V vs limit 1.62 V`. Equal numbers stay equal, at the usual three figures."""
+    near = not relative >= NEAR
+    digits = 3
+    while True:
+        texts = format_number(value, unit, absolute, digits), format_number(bound, unit, absolute, digits)
+        if not near or value == bound or texts[0] != texts[1] or digits >= MAX_DIGITS:
+            return texts
+        digits += 1
 
 
 def format_margin(margin: float, unit: str, absolute: bool = False, signed: bool = False) -> str:
@@ -48,6 +67,22 @@ def format_margin(margin: float, unit: str, absolute: bool = False, signed: bool
     if signed and margin > 0 and math.isfinite(margin):
         return "+" + text
     return text
+
+
+UNCHANGED = "unchanged"
+
+
+def format_margin_change(now: float, base: float, unit: str, absolute: bool = False) -> str:
+    """Now minus base, signed; `unchanged` when the change is below the resolution the margins are
+    shown with (half a unit in the third significant figure of the larger), never `+0 V` or `+1.00 fV`."""
+    delta = now - base
+    if not math.isfinite(delta):
+        return ""
+    largest = max(abs(now), abs(base))
+    resolution = 10 ** (math.floor(math.log10(largest)) - 2) if largest > 0 else 0.0
+    if abs(delta) < resolution / 2 or delta == 0:
+        return UNCHANGED
+    return format_margin(delta, unit, absolute, signed=True)
 
 
 def format_base_margin(margin: float, unit: str, absolute: bool = False) -> str:
@@ -221,8 +256,7 @@ def _base_columns(finding: Finding, worst: Outcome) -> tuple[str, str, str]:
         return finding.change or "", "", ""
     unit, absolute = margin_unit(finding)
     base = format_base_margin(finding.base_margin, unit, absolute)
-    delta = worst.margin - finding.base_margin
-    change = format_margin(delta, unit, absolute, signed=True) if math.isfinite(delta) else ""
+    change = format_margin_change(worst.margin, finding.base_margin, unit, absolute)
     return finding.change or "", base, change
 
 
@@ -232,9 +266,8 @@ def _worst_columns(worst: Outcome | None) -> dict[str, str]:
         return dict.fromkeys(("case", "value", "bound", "margin", "relative"), NO_TEXT)
     if worst.error:
         return dict(case=case_label(worst), value=NO_POINT, bound=NO_TEXT, margin=NO_TEXT, relative=NO_TEXT)
-    return dict(case=case_label(worst),
-                value=format_number(worst.value, worst.unit, worst.absolute),
-                bound=format_number(worst.bound, worst.unit, worst.absolute),
+    value, bound = format_pair(worst.value, worst.bound, worst.unit, worst.absolute, worst.relative)
+    return dict(case=case_label(worst), value=value, bound=bound,
                 margin=format_margin(worst.margin, worst.unit, worst.absolute),
                 relative=format_relative(worst.relative))
 

@@ -44,6 +44,7 @@ def _block(text: str, case: str) -> list[str]:
 
 
 def test_table_uses_engineering_units():
+    """Four significant figures (issue 10, item 6)."""
     points = operating_points()
     text = render_solve_table(points)
     assert text.startswith("case fresh_cells: ambient 25.0 °C, newton, 7 iterations")
@@ -51,10 +52,10 @@ def test_table_uses_engineering_units():
     for point in points:
         lines = _block(text, point.case)
         for net, volts in point.nets.items():
-            assert any(line.split() == [net] + format_value(volts, "V").split() for line in lines)
+            assert any(line.split() == [net] + format_value(volts, "V", 4).split() for line in lines)
         resistor = point.parts["R_SENSE"]
         expected = ["R_SENSE"] + [w for v, u in ((resistor.voltage, "V"), (resistor.current, "A"),
-                                                 (resistor.power, "W")) for w in format_value(v, u).split()]
+                                                 (resistor.power, "W")) for w in format_value(v, u, 4).split()]
         assert any(line.split() == expected for line in lines)
 
 
@@ -78,4 +79,4 @@ def test_multi_terminal_parts_list_their_pin_currents():
     assert lines[start].split()[1:3] == ["—", "—"]
     pins = [line.split() for line in lines[start + 1:start + 4]]
     assert [p[:2] for p in pins] == [["into", "c"], ["into", "b"], ["into", "e"]]
-    assert " ".join(pins[0][2:]) == format_value(operating_points()[0].parts["Q_DRV"].pins["c"], "A")
+    assert " ".join(pins[0][2:]) == format_value(operating_points()[0].parts["Q_DRV"].pins["c"], "A", 4)
