@@ -14,20 +14,8 @@ import pytest
 
 from checker.cli import main
 from checker.units import format_percent
+from hostile_repo import CIRCUIT, LIMITS
 
-CIRCUIT = """\
-circuit bike "Bike light"
-ground gnd
-source   VBAT from vbat to gnd : 3.7 V
-resistor R1   from vbat to adc : 68 kohm, rating = 63 mW
-resistor R2   from adc to gnd  : 32 kohm, rating = 63 mW
-"""
-LIMITS = """\
-limits:
-  - id: adc-range
-    about: Battery sense stays inside the ADC range
-    check: voltage(adc) <= 1.8 V
-"""
 CONFIG = """\
 circuits: ['*.circuit']
 limits: [limits.yaml]
