@@ -135,7 +135,7 @@ class OperatingPoint:
     """The DC solution of one netlist.
 
     `strategy` is how it was reached: "linear" (one direct solve), "newton",
-    "gain stepping", "gmin stepping" or "source stepping".
+    "gain stepping", "shunt stepping" or "source stepping".
     """
 
     netlist: Netlist

@@ -27,6 +27,13 @@ def run(args: argparse.Namespace) -> int:
     return stoppable(lambda: _format(args))
 
 
+def _check_summary(untidy: int, total: int) -> str:
+    """The last line of `fmt --check`: how many files would change, and what to run."""
+    if not untidy:
+        return f"nodegate fmt: all {total} file(s) in canonical layout"
+    return f"nodegate fmt: {untidy} of {total} file(s) not in canonical layout; `nodegate fmt FILE` rewrites them"
+
+
 def _format(args: argparse.Namespace) -> int:
     changed = []
     for path in dict.fromkeys(args.files):  # each file once, in the order given
@@ -35,7 +42,8 @@ def _format(args: argparse.Namespace) -> int:
             changed.append((path, formatted))
     if args.check:
         for path, _ in changed:
-            print(f"would reformat {path}")
+            print(f"not in canonical layout: {path}")
+        print(_check_summary(len(changed), len(dict.fromkeys(args.files))))
         return 1 if changed else 0
     write_set([_planned(path, formatted) for path, formatted in changed])
     for path, _ in changed:

@@ -12,7 +12,7 @@ A zener adds a breakdown branch in antiparallel: a second junction with ideality
 in series with `rz`, whose saturation current is set so that it carries the test
 current at `vz = V at I` at the case's ambient (the breakdown voltage is taken as
 independent of temperature). Both branches are smooth, so the whole law is.
-Every part also has GMIN (1e-12 S) in parallel, as is usual in circuit solvers.
+Every part also has SHUNT (1e-12 S) in parallel, as is usual in circuit solvers.
 """
 
 from __future__ import annotations
@@ -107,8 +107,8 @@ class Diode(Device):
         return x[self.nodes[:, 0]] - x[self.nodes[:, 1]]
 
     def _law(self, v: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Current from -> to (A) and its slope (S) at `v` (V), all branches and GMIN."""
-        i, g = junction.GMIN * v, np.full_like(v, junction.GMIN)
+        """Current from -> to (A) and its slope (S) at `v` (V), all branches and SHUNT."""
+        i, g = junction.SHUNT * v, np.full_like(v, junction.SHUNT)
         for b in self.branches:
             ib, gb = junction.current(b.sign * v, b.log_is, b.nvt, b.rseries)
             i, g = i + b.sign * ib, g + gb
@@ -127,7 +127,7 @@ class Diode(Device):
         v0 = forward.nvt * np.log1p(GUESS_CURRENT / isat) + GUESS_CURRENT * forward.rseries
         g0 = 1.0 / (forward.nvt / (GUESS_CURRENT + isat) + forward.rseries)
         v = self._voltage(x)
-        i, g = GUESS_CURRENT + g0 * (v - v0), g0 + junction.GMIN
+        i, g = GUESS_CURRENT + g0 * (v - v0), g0 + junction.SHUNT
         for b in self.branches[1:]:
             ib, gb = junction.current(b.sign * v, b.log_is, b.nvt, b.rseries)
             i, g = i + b.sign * ib, g + gb
@@ -167,12 +167,12 @@ class Led(Diode):
         """The Eg (eV) that makes the junction voltage at 10 mA drift by TEMPCO at 25 degC.
 
         Silicon's 1.11 eV would make a 2 V junction's voltage rise with temperature.
-        From the law in `log_isat_at`, at fixed current dV/dT = (V0 - XTI Vt0 - Eg) / T0,
-        so Eg = V0 - XTI Vt0 - TEMPCO T0.
+        From the law in `log_isat_at`, at fixed current dV/dT = (V0 - m Vt0 - Eg) / T0,
+        so Eg = V0 - m Vt0 - TEMPCO T0.
         """
         vt0 = junction.thermal_voltage(junction.T_REFERENCE)
         v0 = ideality * vt0 * np.log1p(10e-3 / np.exp(log_is_ref))
-        return v0 - junction.XTI_SILICON * vt0 - self.TEMPCO * junction.T_REFERENCE
+        return v0 - junction.IS_TEMPERATURE_EXPONENT * vt0 - self.TEMPCO * junction.T_REFERENCE
 
     @classmethod
     def describe(cls, part: Part) -> str:

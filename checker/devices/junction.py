@@ -15,8 +15,8 @@ BOLTZMANN = 1.380649e-23  # J/K, exact by definition (SI Brochure, 9th ed., 2019
 ELEMENTARY_CHARGE = 1.602176634e-19  # C, exact by definition (same source)
 T_REFERENCE = 298.15  # K: 25 degC, where device parameters are given (docs/models.md)
 EG_SILICON = 1.11  # eV, band gap used by the temperature law (Massobrio & Antognetti, 1993; from memory)
-XTI_SILICON = 3.0  # saturation-current temperature exponent of silicon (same source; from memory)
-GMIN = 1e-12  # S across every junction and channel, so a reverse-biased or off part never leaves a net without a slope
+IS_TEMPERATURE_EXPONENT = 3.0  # saturation-current temperature exponent of silicon (same source; from memory)
+SHUNT = 1e-12  # S across every junction and channel, so a reverse-biased or off part never leaves a net without a slope
 LOG_I_MAX = np.log(1e6)  # ln(A): above 1 MA a junction's exponential is continued along its tangent
 
 
@@ -29,13 +29,14 @@ def log_isat_at(log_is_ref: np.ndarray, ideality: np.ndarray, temperature: float
                 band_gap: float | np.ndarray = EG_SILICON) -> np.ndarray:
     """ln Is(T) from ln Is(25 degC); `band_gap` in eV.
 
-    Is(T) = Is(T0) (T/T0)^(XTI/n) exp(Eg/(n Vt(T)) (T/T0 - 1)), with T0 = 298.15 K,
-    and for silicon Eg = 1.11 eV and XTI = 3 (Sze & Ng, "Physics of Semiconductor
+    Is(T) = Is(T0) (T/T0)^(m/n) exp(Eg/(n Vt(T)) (T/T0 - 1)), with T0 = 298.15 K,
+    where m is the temperature exponent of the saturation current; for silicon
+    Eg = 1.11 eV and m = 3 (Sze & Ng, "Physics of Semiconductor
     Devices", 3rd ed., 2007, ch. 2; Massobrio & Antognetti, "Semiconductor Device
     Modeling", 2nd ed., 1993, ch. 1 — chapters and edition from memory).
     """
     ratio = temperature / T_REFERENCE
-    return (log_is_ref + (XTI_SILICON / ideality) * np.log(ratio)
+    return (log_is_ref + (IS_TEMPERATURE_EXPONENT / ideality) * np.log(ratio)
             + band_gap / (ideality * thermal_voltage(temperature)) * (ratio - 1.0))
 
 

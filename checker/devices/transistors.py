@@ -53,7 +53,7 @@ class Bjt(_Transistor):
     `beta` is beta_f (default 100); beta_r is 1; `isat` defaults to 1e-14 A (common
     practice for a small-signal silicon transistor). Is follows the ambient by the
     silicon temperature law with ideality 1; beta is taken as temperature-independent.
-    GMIN (1e-12 S) is across each junction.
+    SHUNT (1e-12 S) is across each junction.
     """
 
     kind = "bjt"
@@ -94,12 +94,12 @@ class Bjt(_Transistor):
         vbe, vbc = self._junctions(x)
         i_f, g_f = junction.current(vbe, self.log_is, self.vt, self.no_rs)
         i_r, g_r = junction.current(vbc, self.log_is, self.vt, self.no_rs)
-        gmin = junction.GMIN
-        ic = i_f - i_r * (1.0 + 1.0 / self.BETA_R) - gmin * vbc
-        ib = i_f / self.beta + i_r / self.BETA_R + gmin * (vbe + vbc)
+        shunt = junction.SHUNT
+        ic = i_f - i_r * (1.0 + 1.0 / self.BETA_R) - shunt * vbc
+        ib = i_f / self.beta + i_r / self.BETA_R + shunt * (vbe + vbc)
         # d/dVbe and d/dVbc of Ic and Ib; Vbe = p(vb - ve), Vbc = p(vb - vc), and p^2 = 1.
-        dic = np.column_stack([g_f, -g_r * (1.0 + 1.0 / self.BETA_R) - gmin])
-        dib = np.column_stack([g_f / self.beta + gmin, g_r / self.BETA_R + gmin])
+        dic = np.column_stack([g_f, -g_r * (1.0 + 1.0 / self.BETA_R) - shunt])
+        dib = np.column_stack([g_f / self.beta + shunt, g_r / self.BETA_R + shunt])
         to_nodes = np.array([[0.0, 1.0, -1.0], [-1.0, 1.0, 0.0]])  # rows Vbe, Vbc; columns vc, vb, ve
         slopes_c, slopes_b = dic @ to_nodes, dib @ to_nodes
         slopes = np.stack([slopes_c, slopes_b, -(slopes_c + slopes_b)], axis=1)
@@ -134,7 +134,7 @@ class Mosfet(_Transistor):
     Vds = Vov. For Vds < 0 drain and source swap roles, so the law is symmetric. The
     gate draws no current. Defaults: vth 1 V (nmos) or -1 V (pmos), k 0.1 A/V^2,
     lambda 0 (our choice: a small logic-level switch). Parameters do not move with
-    temperature. GMIN (1e-12 S) is across drain and source.
+    temperature. SHUNT (1e-12 S) is across drain and source.
     """
 
     kind = "mosfet"
@@ -178,8 +178,8 @@ class Mosfet(_Transistor):
         swapped = vds < 0.0  # source and drain trade places: Id(vgs, vds) = -Id(vgs - vds, -vds)
         i, gm, gds = self._channel(np.where(swapped, vgs - vds, vgs), np.abs(vds))
         di_dvgs = np.where(swapped, -gm, gm)
-        di_dvds = np.where(swapped, gm + gds, gds) + junction.GMIN
-        i = np.where(swapped, -i, i) + junction.GMIN * vds
+        di_dvds = np.where(swapped, gm + gds, gds) + junction.SHUNT
+        i = np.where(swapped, -i, i) + junction.SHUNT * vds
         row = np.column_stack([di_dvds, di_dvgs, -(di_dvds + di_dvgs)])  # against vd, vg, vs (p^2 = 1)
         slopes = np.stack([row, np.zeros_like(row), -row], axis=1)
         currents = self.p[:, None] * np.column_stack([i, np.zeros_like(i), -i])

@@ -1,14 +1,14 @@
 """Newton-Raphson on the modified nodal equations of a circuit with nonlinear devices.
 
-The residual is F(x) = A x - s b + f(x) + gmin x_nets: the constant stamps, the
-sources scaled by s, the nonlinear devices' currents, and a conductance gmin from
-every net to ground. Each step solves J dx = -F with J = A + df/dx + gmin I
+The residual is F(x) = A x - s b + f(x) + shunt x_nets: the constant stamps, the
+sources scaled by s, the nonlinear devices' currents, and a conductance shunt from
+every net to ground. Each step solves J dx = -F with J = A + df/dx + shunt I
 (Newton-Raphson as applied to circuits in Vlach & Singhal, "Computer Methods for
 Circuit Analysis and Design", 1983, ch. 10 â€” chapter from memory). The Jacobian's
 sparsity pattern is worked out once per topology and layout (kept in `topology`);
 each iteration only refills its values with one vectorised pass per device kind.
 
-Plain Newton (s = 1, gmin = 0) starts from a first guess: one linear solve with
+Plain Newton (s = 1, shunt = 0) starts from a first guess: one linear solve with
 every device linearised at 0 V (constant-power loads standing aside). When it does
 not settle, continuation methods follow (Najm, "Circuit Simulation", 2010, ch. 5;
 Allgower & Georg, "Introduction to Numerical Continuation Methods", 1990/2003,
@@ -16,7 +16,7 @@ ch. 1 and 2 on embedding a hard problem in a family solved from an easy member â
 chapters from memory), each solution of the family starting Newton on the next:
 gain stepping when the circuit has amplifiers (cap every open-loop gain low, where
 a positive-feedback loop is benign, and raise the cap geometrically to the declared
-gains), gmin stepping (solve with a large gmin, then lower it decade by decade to
+gains), shunt stepping (solve with a large shunt, then lower it decade by decade to
 zero) and source stepping (raise s from 0 to 1 in adaptive steps). docs/models.md
 states the tolerances.
 
@@ -42,13 +42,13 @@ from checker.solver.assembly import System
 from checker.solver.linear import Factor
 from checker.solver.topology import Pattern
 
-VOLTAGE_ABSTOL = 1e-9  # V: smallest voltage step (and branch-equation residual) that still counts
-CURRENT_ABSTOL = 1e-12  # A: smallest current step (and KCL residual) that still counts
-RELTOL = 1e-9
+VOLTAGE_FLOOR = 1e-9  # V: smallest voltage step (and branch-equation residual) that still counts
+CURRENT_FLOOR = 1e-12  # A: smallest current step (and KCL residual) that still counts
+RELATIVE_TOLERANCE = 1e-9
 """Relative tolerance of both tests, against the size of the unknown (step test) or
 against the sum of the magnitudes of the currents meeting at the net (residual test).
 Converged means every unknown's step and every row's residual are within
-ABSTOL + RELTOL * scale: the common practice of circuit solvers, set tight because
+floor + RELATIVE_TOLERANCE * scale (the floor is VOLTAGE_FLOOR or CURRENT_FLOOR): the common practice of circuit solvers, set tight because
 Newton-Raphson converges quadratically near the solution, so a tight test costs an
 iteration or two while keeping margins to limits exact to many digits."""
 MAX_ITERATIONS = 100  # plain Newton
@@ -58,15 +58,15 @@ MAX_STEPS = 200  # continuation steps per method
 CONTINUATION_BUDGET = 1000  # Newton iterations per continuation method, so that a hopeless case ends in bounded time
 DIVERGED = 1e9  # V or A: an iterate beyond this has run away
 HALVINGS = 20  # damping: a step whose end cannot be evaluated is halved at most this often
-GMIN_START = -2.0  # log10 S: gmin stepping starts at 10 mS from every net to ground
-GMIN_END = -12.0  # log10 S: the last nonzero gmin before zero
+SHUNT_START = -2.0  # log10 S: shunt stepping starts at 10 mS from every net to ground
+SHUNT_END = -12.0  # log10 S: the last nonzero shunt before zero
 GAIN_START = -1.0  # log10 V/V: gain stepping starts with every open-loop gain capped at 0.1
-MIN_STEP = 1e-3  # smallest continuation step: decades of gmin or gain, or fraction of full sources
+MIN_STEP = 1e-3  # smallest continuation step: decades of shunt or gain, or fraction of full sources
 
 STRATEGIES = {
     "newton": "plain Newton iteration from a first guess",
     "gain stepping": "raising the amplifiers' gain step by step",
-    "gmin stepping": "raising a small conductance to ground on every net and lowering it step by step",
+    "shunt stepping": "raising a small conductance to ground on every net and lowering it step by step",
     "source stepping": "ramping all sources up from zero",
 }
 
@@ -83,7 +83,7 @@ class Equations:
         self.magnitude = abs(system.matrix)
         self.pattern: Pattern | None = None  # fixed by the first linearisation: device layouts do not depend on x
 
-    def linearise(self, x: np.ndarray, gmin: float = 0.0, scale: float = 1.0, first: bool = False,
+    def linearise(self, x: np.ndarray, shunt: float = 0.0, scale: float = 1.0, first: bool = False,
                   gain_cap: float = math.inf) -> tuple[np.ndarray, sp.csc_matrix, np.ndarray]:
         """Residual F(x), Jacobian J(x) and each row's scale for the residual test, with sources
         scaled by `scale` and amplifiers' gains capped at `gain_cap` (V/V)."""
@@ -102,9 +102,9 @@ class Equations:
             values.append(jacobian.values[keep])
             if self.pattern is None:
                 layout.append((jacobian.rows[keep], jacobian.cols[keep]))
-        residual[:self.nodes] += gmin * x[:self.nodes]
-        row_scale[:self.nodes] += gmin * np.abs(x[:self.nodes])
-        values.append(np.full(self.nodes, gmin))
+        residual[:self.nodes] += shunt * x[:self.nodes]
+        row_scale[:self.nodes] += shunt * np.abs(x[:self.nodes])
+        values.append(np.full(self.nodes, shunt))
         if self.pattern is None:
             diagonal = np.arange(self.nodes)
             layout.append((diagonal, diagonal))
@@ -124,13 +124,13 @@ class Equations:
     def tolerances(self) -> tuple[np.ndarray, np.ndarray]:
         """Absolute tolerance per unknown (step) and per row (residual)."""
         is_node = np.arange(self.size) < self.nodes
-        return (np.where(is_node, VOLTAGE_ABSTOL, CURRENT_ABSTOL),
-                np.where(is_node, CURRENT_ABSTOL, VOLTAGE_ABSTOL))
+        return (np.where(is_node, VOLTAGE_FLOOR, CURRENT_FLOOR),
+                np.where(is_node, CURRENT_FLOOR, VOLTAGE_FLOOR))
 
     def converged(self, step: np.ndarray, x: np.ndarray, residual: np.ndarray, row_scale: np.ndarray) -> bool:
         step_tol, residual_tol = self.tolerances()
-        return bool(np.all(np.abs(step) <= step_tol + RELTOL * np.abs(x))
-                    and np.all(np.abs(residual) <= residual_tol + RELTOL * row_scale))
+        return bool(np.all(np.abs(step) <= step_tol + RELATIVE_TOLERANCE * np.abs(x))
+                    and np.all(np.abs(residual) <= residual_tol + RELATIVE_TOLERANCE * row_scale))
 
     def first_guess(self, gain_cap: float = math.inf) -> np.ndarray:
         """Newton's starting point: the linear solve with devices linearised at 0 V, taken as a
@@ -156,16 +156,16 @@ class Run:
     converged: bool
 
 
-def iterate(equations: Equations, x: np.ndarray, gmin: float, scale: float, budget: int,
+def iterate(equations: Equations, x: np.ndarray, shunt: float, scale: float, budget: int,
             gain_cap: float = math.inf) -> Run:
-    """Damped Newton-Raphson from `x` at fixed gmin, source scale and gain cap, for at most `budget` iterations.
+    """Damped Newton-Raphson from `x` at fixed shunt, source scale and gain cap, for at most `budget` iterations.
 
     Damping: junction limiting shortens steps (see the devices' `limit`), and a
     step whose end gives a non-finite residual is halved, at most HALVINGS times.
     """
     previous, halvings = None, 0
     for iteration in range(1, budget + 1):
-        residual, jacobian, row_scale = equations.linearise(x, gmin, scale, gain_cap=gain_cap)
+        residual, jacobian, row_scale = equations.linearise(x, shunt, scale, gain_cap=gain_cap)
         if not np.all(np.isfinite(residual)):
             if previous is None or halvings >= HALVINGS:
                 return Run(x, iteration, False)
@@ -218,7 +218,7 @@ def newton(system: System, guess: np.ndarray | None = None, fallback: bool = Tru
 def _continuations(equations: Equations, start: np.ndarray) -> list:
     """(name, method) of the continuation methods that apply, in the order they are tried: gain
     stepping first when there are amplifiers, as a positive-feedback loop defeats the others."""
-    methods = [("gmin stepping", lambda: gmin_stepping(equations, start)),
+    methods = [("shunt stepping", lambda: shunt_stepping(equations, start)),
                ("source stepping", lambda: source_stepping(equations))]
     if equations.largest_gain() > 0.0:
         methods.insert(0, ("gain stepping", lambda: gain_stepping(equations)))
@@ -244,16 +244,16 @@ def gain_stepping(equations: Equations) -> Run:
     return _walk(equations, run, 1.0, settings)
 
 
-def gmin_stepping(equations: Equations, start: np.ndarray) -> Run:
+def shunt_stepping(equations: Equations, start: np.ndarray) -> Run:
     """Solve with 10 mS from every net to ground, lower it a decade at a time (adaptively)
     to 1 pS, then remove it."""
-    run = iterate(equations, start, 10.0 ** GMIN_START, 1.0, STEP_ITERATIONS)
+    run = iterate(equations, start, 10.0 ** SHUNT_START, 1.0, STEP_ITERATIONS)
     if not run.converged:
         return run
 
     def settings(decades: float) -> tuple[float, float, float, bool]:
-        exponent = GMIN_START - decades
-        return (0.0, 1.0, math.inf, True) if exponent < GMIN_END else (10.0 ** exponent, 1.0, math.inf, False)
+        exponent = SHUNT_START - decades
+        return (0.0, 1.0, math.inf, True) if exponent < SHUNT_END else (10.0 ** exponent, 1.0, math.inf, False)
     return _walk(equations, run, 1.0, settings)
 
 
@@ -264,15 +264,15 @@ def source_stepping(equations: Equations) -> Run:
 
 
 def _walk(equations: Equations, run: Run, step: float, settings) -> Run:
-    """Move a continuation parameter from 0 in steps; `settings(position)` gives (gmin, source
+    """Move a continuation parameter from 0 in steps; `settings(position)` gives (shunt, source
     scale, gain cap, whether this is the last position). A converged step is kept and the next one made
     half as long again; a failed one is retried a quarter as long, down to MIN_STEP."""
     x, spent, position = run.x, run.iterations, 0.0
     for _ in range(MAX_STEPS):
         if spent >= CONTINUATION_BUDGET:
             break
-        gmin, scale, gain_cap, last = settings(position + step)
-        attempt = iterate(equations, x, gmin, scale, STEP_ITERATIONS, gain_cap)
+        shunt, scale, gain_cap, last = settings(position + step)
+        attempt = iterate(equations, x, shunt, scale, STEP_ITERATIONS, gain_cap)
         spent += attempt.iterations
         if attempt.converged:
             if last:
@@ -290,7 +290,7 @@ def no_convergence(equations: Equations, x: np.ndarray) -> NoSolutionError:
     netlist = equations.netlist
     residual, _, row_scale = equations.linearise(x)
     _, residual_tol = equations.tolerances()
-    badness = np.abs(residual) / (residual_tol + RELTOL * row_scale)
+    badness = np.abs(residual) / (residual_tol + RELATIVE_TOLERANCE * row_scale)
     badness[~np.isfinite(badness)] = np.inf
     tried = "; ".join([STRATEGIES["newton"]] + [STRATEGIES[name] for name, _ in _continuations(equations, x)])
     message = (f"circuit `{netlist.circuit}` has no DC operating point that could be found in case "

@@ -35,9 +35,12 @@ def test_integration_fmt_rewrites_in_place(tmp_path, capsys):
 def test_integration_fmt_check_changes_nothing(tmp_path, capsys):
     untidy, tidy = write(tmp_path, "a.circuit", UNTIDY), write(tmp_path, "b.circuit", TIDY)
     assert main(["fmt", "--check", str(untidy), str(tidy)]) == 1
-    assert capsys.readouterr().out == f"would reformat {untidy}\n"
+    assert capsys.readouterr().out == (f"not in canonical layout: {untidy}\n"
+                                       "nodegate fmt: 1 of 2 file(s) not in canonical layout; "
+                                       "`nodegate fmt FILE` rewrites them\n")
     assert untidy.read_text(encoding="utf-8") == UNTIDY
     assert main(["fmt", "--check", str(tidy)]) == 0
+    assert capsys.readouterr().out == "nodegate fmt: all 1 file(s) in canonical layout\n"
     assert capsys.readouterr().out == ""
 
 
@@ -81,4 +84,6 @@ def test_integration_fmt_as_a_subprocess(tmp_path):
     root = Path(__file__).resolve().parents[2]
     done = subprocess.run([sys.executable, "-m", "checker", "fmt", "--check", str(path)], cwd=root,
                           capture_output=True, text=True, check=False)
-    assert (done.returncode, done.stdout, done.stderr) == (1, f"would reformat {path}\n", "")
+    assert (done.returncode, done.stdout, done.stderr) == (1, f"not in canonical layout: {path}\n"
+                                                            "nodegate fmt: 1 of 1 file(s) not in canonical layout; "
+                                                            "`nodegate fmt FILE` rewrites them\n", "")

@@ -30,7 +30,7 @@ from checker.solver import solve, solve_cases
 
 K, Q = 1.380649e-23, 1.602176634e-19  # exact SI values (SI Brochure, 9th ed., 2019, Table 1)
 VT = K * 298.15 / Q
-GMIN = 1e-12  # S across every junction (docs/models.md)
+SHUNT = 1e-12  # S across every junction (docs/models.md)
 ISAT = 1e-14  # A: the diode default (docs/models.md)
 
 FROST_ALARM = """\
@@ -195,8 +195,8 @@ def test_window_comparator_with_two_op_amps(vin):
     assert op.nets["above"] == pytest.approx(above, rel=1e-9)
     assert op.nets["below"] == pytest.approx(below, rel=1e-9)
 
-    def kcl(ok):  # pull-up current in, minus both diodes' Shockley currents (with GMIN) out
-        diodes = sum(ISAT * math.expm1((ok - v) / VT) + GMIN * (ok - v) for v in (above, below))
+    def kcl(ok):  # pull-up current in, minus both diodes' Shockley currents (with SHUNT) out
+        diodes = sum(ISAT * math.expm1((ok - v) / VT) + SHUNT * (ok - v) for v in (above, below))
         return (5.0 - ok) / 47e3 - diodes
 
     ok = brentq(kcl, 0.0, 5.0, xtol=1e-15)

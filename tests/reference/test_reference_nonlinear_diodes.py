@@ -28,12 +28,12 @@ def net(*parts, ambient=T25):
     return Netlist("bench", "default", ambient, "gnd", tuple(parts))
 
 
-def isat_at(is25, n, t, eg=1.11, xti=3.0):
+def isat_at(is25, n, t, eg=1.11, m=3.0):
     """The saturation-current temperature law, written out again from its source:
-    Is(T) = Is(T0) (T/T0)^(XTI/n) exp(q Eg/(n k T) (T/T0 - 1)) (Sze & Ng, "Physics of
+    Is(T) = Is(T0) (T/T0)^(m/n) exp(q Eg/(n k T) (T/T0 - 1)) (Sze & Ng, "Physics of
     Semiconductor Devices", 3rd ed., 2007; Massobrio & Antognetti, "Semiconductor Device
     Modeling", 1993 — from memory)."""
-    return is25 * (t / T25) ** (xti / n) * math.exp(Q * eg / (n * K * t) * (t / T25 - 1.0))
+    return is25 * (t / T25) ** (m / n) * math.exp(Q * eg / (n * K * t) * (t / T25 - 1.0))
 
 
 def lambert_current(e, r, isat, n, t):
@@ -145,7 +145,7 @@ def test_zener_forward_is_a_diode():
     assert op.nets["a"] == pytest.approx(v, rel=1e-9)
 
 
-def test_reverse_biased_diode_leaks_isat_and_gmin():
+def test_reverse_biased_diode_leaks_isat_and_shunt():
     op = solve(net(two("V1", "source", "a", "gnd", 5.0, "V"), two("D1", "diode", "gnd", "a", isat=1e-9)))
     assert op.parts["D1"].current == pytest.approx(-(1e-9 + 1e-12 * 5.0), rel=1e-9)
     assert np.isfinite(op.parts["D1"].power)

@@ -74,7 +74,7 @@ def test_common_source_in_triode(flag):
 
 def test_mosfet_below_threshold_passes_only_gmin():
     op = common_source(0.5, 0.02)
-    assert op.nets["d"] == pytest.approx(5.0 - 1e3 * 5e-12, abs=1e-12)  # only GMIN (1e-12 S) conducts
+    assert op.nets["d"] == pytest.approx(5.0 - 1e3 * 5e-12, abs=1e-12)  # only SHUNT (1e-12 S) conducts
     assert op.parts["M1"].pins["d"] == pytest.approx(5e-12, rel=1e-6)
 
 
@@ -85,7 +85,7 @@ def test_mosfet_is_symmetric_when_drain_and_source_swap():
                          three("M1", "mosfet", {"d": d, "g": "g", "s": s}, "nmos", vth=1.0, k=0.5,
                                **{"lambda": 0.05})))
     forward, backward = run("top", "gnd"), run("gnd", "top")
-    # vds = 0.3 V < Vov = 2 V: triode, k (Vov Vds - Vds^2/2)(1 + lambda Vds) by hand, plus GMIN.
+    # vds = 0.3 V < Vov = 2 V: triode, k (Vov Vds - Vds^2/2)(1 + lambda Vds) by hand, plus SHUNT.
     by_hand = 0.5 * (2.0 * 0.3 - 0.045) * (1 + 0.05 * 0.3) + 1e-12 * 0.3
     assert forward.parts["M1"].pins["d"] == pytest.approx(by_hand, rel=1e-9)
     assert backward.parts["M1"].pins["s"] == pytest.approx(by_hand, rel=1e-9)

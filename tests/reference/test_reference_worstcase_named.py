@@ -238,7 +238,7 @@ def test_mosfet_dissipation_peak_inside_the_box():
     finding = worst_case(FAN, f"power(M1) <= {limit:.12g} W")
     worst = finding.worst
     assert not worst.holds
-    # never better than the peak; GMIN (1e-12 S across the channel) adds V_DS^2 GMIN = 4e-11 W at most
+    # never better than the peak; SHUNT (1e-12 S across the channel) adds V_DS^2 SHUNT = 4e-11 W at most
     assert worst.margin <= limit - peak + RESOLUTION * peak
     assert worst.margin >= limit - peak - RESOLUTION * peak
     point = deviations(finding)

@@ -4,7 +4,7 @@ Closed forms (Ohm's law and Kirchhoff's current law): a regulator drawing I_load
 through a feed resistor sees V_in = V_supply - R_feed (I_load + iq); below its dropout its
 output is V_in - dropout (docs/models.md, regulator). A MOSFET held off (V_GS = 0 below
 vth) carries no drain current, so a drain pulled up through a resistor sits at the supply.
-The solver adds gmin from every net to ground, hence the small absolute tolerances.
+The solver adds shunt from every net to ground, hence the small absolute tolerances.
 """
 
 from __future__ import annotations

@@ -22,7 +22,7 @@ from checker.solver.newton import STRATEGIES, Equations, newton
 K, Q = 1.380649e-23, 1.602176634e-19  # exact SI 2019 values (SI Brochure, 9th ed., 2019)
 T25 = 298.15
 VT = K * T25 / Q
-GMIN = 1e-12
+SHUNT = 1e-12
 
 
 def two(name, kind, a, b, value=None, unit=None, at=None, line=None, **props):
@@ -57,11 +57,11 @@ def assert_kirchhoff_and_tellegen(op):
 
 def test_fifty_diodes_in_series():
     # 40 V through 1 kΩ into 50 diodes: by symmetry each carries the same current, so KCL
-    # reduces to one equation, (40 - 50 v)/1k = Is (exp(v/Vt) - 1) + GMIN v, solved by brentq.
+    # reduces to one equation, (40 - 50 v)/1k = Is (exp(v/Vt) - 1) + SHUNT v, solved by brentq.
     parts = [two("V1", "source", "n0", "gnd", 40.0, "V"), two("R1", "resistor", "n0", "n1", 1e3, "ohm")]
     parts += [two(f"D{k}", "diode", f"n{k}", f"n{k + 1}" if k < 50 else "gnd") for k in range(1, 51)]
     op = solve(net(*parts))
-    v = brentq(lambda u: 1e-14 * math.expm1(u / VT) + GMIN * u - (40.0 - 50 * u) / 1e3, 0.0, 0.8, xtol=1e-15)
+    v = brentq(lambda u: 1e-14 * math.expm1(u / VT) + SHUNT * u - (40.0 - 50 * u) / 1e3, 0.0, 0.8, xtol=1e-15)
     assert op.parts["D25"].voltage == pytest.approx(v, rel=1e-6)
     assert op.parts["R1"].current == pytest.approx((40.0 - 50 * v) / 1e3, rel=1e-6)
     assert op.strategy == "newton"
@@ -86,11 +86,11 @@ def test_back_to_back_junctions_pass_only_leakage():
                    two("D2", "diode", "gnd", "m", isat=1e-12)))
 
     def kcl(vm):  # current into m through D1 (a -> m) plus through D2 (gnd -> m)
-        return (1e-12 * math.expm1((5.0 - vm) / VT) + GMIN * (5.0 - vm)) + (1e-12 * math.expm1(-vm / VT) - GMIN * vm)
+        return (1e-12 * math.expm1((5.0 - vm) / VT) + SHUNT * (5.0 - vm)) + (1e-12 * math.expm1(-vm / VT) - SHUNT * vm)
 
     vm = brentq(kcl, 0.0, 5.0, xtol=1e-15)
     assert op.nets["m"] == pytest.approx(vm, rel=1e-9)
-    assert op.parts["D1"].current == pytest.approx(1e-12 * math.expm1((5.0 - vm) / VT) + GMIN * (5.0 - vm), rel=1e-6)
+    assert op.parts["D1"].current == pytest.approx(1e-12 * math.expm1((5.0 - vm) / VT) + SHUNT * (5.0 - vm), rel=1e-6)
     assert_kirchhoff_and_tellegen(op)
 
 
@@ -100,7 +100,7 @@ def test_a_start_far_from_the_solution_still_converges():
                    two("LED1", "led", "a", "gnd")))
     nvt = 2 * VT
     isat = 0.01 / math.expm1(2.0 / nvt)
-    v = brentq(lambda u: isat * math.expm1(u / nvt) + GMIN * u - (1000.0 - u) / 100e3, 0.0, 3.0, xtol=1e-15)
+    v = brentq(lambda u: isat * math.expm1(u / nvt) + SHUNT * u - (1000.0 - u) / 100e3, 0.0, 3.0, xtol=1e-15)
     assert op.nets["a"] == pytest.approx(v, rel=1e-6)
     assert op.iterations < 60
 
@@ -148,7 +148,7 @@ def test_random_diode_networks_against_scipy_root(seed):
         out = np.zeros(len(unknown))
         for kind, a, b, value in branches:
             u = voltage(v, a) - voltage(v, b)
-            i = u / value if kind == "resistor" else value * math.expm1(min(u / VT, 700.0)) + GMIN * u
+            i = u / value if kind == "resistor" else value * math.expm1(min(u / VT, 700.0)) + SHUNT * u
             if a in index:
                 out[index[a]] += i
             if b in index:

@@ -33,7 +33,7 @@ K, Q = 1.380649e-23, 1.602176634e-19  # exact SI 2019 values (SI Brochure, 9th e
 T25 = 298.15
 VT = K * T25 / Q
 ISAT = 1e-14  # A: the solver's default diode saturation current (docs/models.md)
-GMIN = 1e-12  # S: in parallel with every diode (docs/models.md)
+SHUNT = 1e-12  # S: in parallel with every diode (docs/models.md)
 
 PUMP = """circuit pump "Aquarium pump monitor"
 ground gnd
@@ -147,7 +147,7 @@ def diode_circuit(volts: float, ohms: float = 1e3, case: str = "default") -> Net
 
 def diode_volts(volts: float, ohms: float) -> float:
     """The diode voltage from KCL at its anode, solved by brentq."""
-    return brentq(lambda v: ISAT * math.expm1(v / VT) + GMIN * v - (volts - v) / ohms, 0.0, volts, xtol=1e-15)
+    return brentq(lambda v: ISAT * math.expm1(v / VT) + SHUNT * v - (volts - v) / ohms, 0.0, volts, xtol=1e-15)
 
 
 def test_reuse_nonlinear_source_cases_share_devices_and_run_newton_per_case(monkeypatch):

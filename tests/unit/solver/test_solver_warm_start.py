@@ -32,7 +32,7 @@ from checker.solver.results import warm_start
 
 EXAMPLE = Path(__file__).resolve().parents[3] / "examples" / "weather_station" / "nodegate.yaml"
 K, Q = 1.380649e-23, 1.602176634e-19  # exact SI 2019 values (SI Brochure, 9th ed., 2019, Table 1)
-GMIN = 1e-12  # S: in parallel with every junction and channel (docs/models.md)
+SHUNT = 1e-12  # S: in parallel with every junction and channel (docs/models.md)
 SAME = 1e-9  # relative agreement demanded between warm and cold solutions
 
 IRRIGATION = """circuit irrigation "Irrigation valve controller"
@@ -150,7 +150,7 @@ diode    D2 from b to gnd  : isat = 1e-14 A
     for factor in (0.95, 1.0, 1.05):
         point = solve_cases([moved(netlist, {"R1": factor})], None, [nominal])[0]
 
-        def kcl(i: float) -> float:  # volts around the loop at current i; GMIN's 1e-12 S x 0.7 V is negligible
+        def kcl(i: float) -> float:  # volts around the loop at current i; SHUNT's 1e-12 S x 0.7 V is negligible
             return 9.0 - 1e3 * factor * i - 2.0 * vt * math.log1p(i / 1e-14)
         current = brentq(kcl, 1e-6, 9e-3, xtol=1e-18)
         assert point.parts["R1"].current == pytest.approx(current, rel=1e-6)
@@ -212,10 +212,10 @@ def test_a_bistable_latch_follows_the_branch_of_its_guess():
     low_q = solve_cases([hold], None, [solve(set_)])[0]
     high_q = solve_cases([hold], None, [solve(reset)])[0]
     for point, low, high in ((low_q, "q", "qn"), (high_q, "qn", "q")):
-        # The high side: RD into the off transistor (GMIN only) and 100 MΩ; the low side: RD into the
+        # The high side: RD into the off transistor (SHUNT only) and 100 MΩ; the low side: RD into the
         # transistor in triode with its gate at the high side.
-        v_high = brentq(lambda v: (5.0 - v) / 1e4 - v / 1e8 - GMIN * v, 0.0, 5.0, xtol=1e-15)
-        v_low = brentq(lambda v: (5.0 - v) / 1e4 - drain_current(v_high, v) - v / 1e8 - GMIN * v, 0.0, 1.0,
+        v_high = brentq(lambda v: (5.0 - v) / 1e4 - v / 1e8 - SHUNT * v, 0.0, 5.0, xtol=1e-15)
+        v_low = brentq(lambda v: (5.0 - v) / 1e4 - drain_current(v_high, v) - v / 1e8 - SHUNT * v, 0.0, 1.0,
                        xtol=1e-15)
         assert point.nets[high] == pytest.approx(v_high, abs=1e-7)
         assert point.nets[low] == pytest.approx(v_low, abs=1e-7)
