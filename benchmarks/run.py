@@ -190,8 +190,6 @@ def counted_starts(warm: bool) -> Iterator[list[int]]:
     guess, as before warm starts); yields the Newton iterations of every nonlinear solve (a batch of
     worst-case variants solved as one joint circuit, checker.analysis.blocks, counts once)."""
     import checker.analysis.blocks
-    import checker.analysis.boxpoints
-    import checker.analysis.montecarlo
     spent: list[int] = []
 
     def solve(netlists, cache=None, guesses=None, fallback=True):
@@ -200,7 +198,7 @@ def counted_starts(warm: bool) -> Iterator[list[int]]:
         return points
     analysis = checker.analysis
     saved = [(module, module.solve_cases)  # the modules that solve perturbed boards
-             for module in (analysis.montecarlo, analysis.boxpoints, analysis.blocks)]
+             for module in (analysis.blocks,)]
     for module, _ in saved:
         module.solve_cases = solve
     try:

@@ -24,6 +24,23 @@ from checker.solver import Cache, solve_cases
 MARK = "#"  # joins a name and its block number; never part of a name in the circuit language
 
 
+def solve_each(netlists: Sequence[Netlist], cache: Cache,
+               guesses: Sequence[OperatingPoint]) -> list[OperatingPoint | str]:
+    """Each netlist's operating point by the ordinary solver (full fallback), or the message of why it
+    has none: one batch, and one netlist at a time only when the batch meets a point without one."""
+    try:
+        return list(solve_cases(netlists, cache, guesses))
+    except NodegateError:
+        return [_one(netlist, cache, guess) for netlist, guess in zip(netlists, guesses)]
+
+
+def _one(netlist: Netlist, cache: Cache, guess: OperatingPoint) -> OperatingPoint | str:
+    try:
+        return solve_cases([netlist], cache, [guess])[0]
+    except NodegateError as error:
+        return error.message
+
+
 class JointSolver:
     """Solves variants of one case (the same parts, other values) as blocks of one netlist."""
 

@@ -16,14 +16,14 @@ from typing import Sequence
 import numpy as np
 
 from checker.analysis.linearbox import LinearBox
-from checker.analysis.blocks import JointSolver
+from checker.analysis.blocks import JointSolver, solve_each
 from checker.analysis.stacked import PointView, Stacked, stack_points
 from checker.analysis.tolerances import Tolerance, perturbed
 from checker.design import Netlist, OperatingPoint
 from checker.errors import NodegateError
 from checker.limits.engine import CompiledItem
 from checker.limits.sides import Split
-from checker.solver import Cache, solve_cases
+from checker.solver import Cache
 
 Solved = OperatingPoint | str  # an operating point, or why there is none
 BLOCKS = 64  # variants of a nonlinear case solved as one joint circuit (checker.analysis.blocks)
@@ -103,13 +103,4 @@ class BoxPoints:
     def solve(self, deviations: np.ndarray) -> list[Solved]:
         """The ordinary solver at every row (what confirms a reported point), started at nominal."""
         netlists = [self.netlist_at(row) for row in np.atleast_2d(deviations)]
-        try:
-            return list(solve_cases(netlists, self.cache, [self.nominal] * len(netlists)))
-        except NodegateError:
-            return [self._solve_one(netlist) for netlist in netlists]
-
-    def _solve_one(self, netlist: Netlist) -> Solved:
-        try:
-            return solve_cases([netlist], self.cache, [self.nominal])[0]
-        except NodegateError as error:
-            return error.message
+        return solve_each(netlists, self.cache, [self.nominal] * len(netlists))

@@ -20,12 +20,12 @@ from typing import Callable, Sequence
 
 import numpy as np
 
+from checker.analysis.blocks import solve_each
 from checker.analysis.sensitivity import Key, Target, outcomes_at
 from checker.analysis.tolerances import Tolerance, perturbed, toleranced
 from checker.design import Design, Netlist, OperatingPoint
-from checker.errors import NodegateError
 from checker.findings import Outcome
-from checker.solver import Cache, solve_cases
+from checker.solver import Cache
 
 PROGRESS_STEPS = 10  # report progress every tenth of the samples
 
@@ -89,27 +89,13 @@ def monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Seque
     for sample in range(1, samples + 1):
         draw = dict(zip(names, rng.uniform(-1.0, 1.0, len(names))))
         corner = f"sample {sample}"
-        solved = _solved(_board(netlists, tolerances, draw), cache, points)
+        solved = solve_each(_board(netlists, tolerances, draw), cache, points)
         tally.add({netlist.case: (outcomes_at(active[netlist.case], found, corner) if not isinstance(found, str)
                                   else unsolved(nominal[netlist.case], found, corner))
                    for netlist, found in zip(netlists, solved)})
         if sample % step == 0 or sample == samples:
             report(f"{design.name}: {sample} of {samples} samples")
     return tally, samples
-
-
-def _solved(netlists: Sequence[Netlist], cache: Cache, points: Sequence[OperatingPoint]) -> list[OperatingPoint | str]:
-    """Every case of one board, or for a case with no operating point the solver's message."""
-    try:
-        return list(solve_cases(netlists, cache, points))
-    except NodegateError:
-        found: list[OperatingPoint | str] = []
-        for netlist, point in zip(netlists, points):
-            try:
-                found.append(solve_cases([netlist], cache, [point])[0])
-            except NodegateError as error:
-                found.append(error.message)
-        return found
 
 
 def unsolved(nominal: dict[Key, Outcome], message: str, corner: str) -> dict[Key, Outcome]:

@@ -100,16 +100,19 @@ def test_hostile_case_cannot_turn_a_voltage_source_into_a_current_source(repo, c
     assert err.startswith("bike.circuit:6:17: error: source `VBAT` is declared in V")
 
 
-@pytest.mark.parametrize("line, position", [
-    ("resistor R3 from adc to gnd : 1 kohm, theta_ja = -50 K/W\n", "6:50"),
-    ("resistor R3 from adc to gnd : 1 kohm, theta_ja = 0 K/W\n", "6:50"),
-    ("resistor R3 from adc to gnd : 1 kohm\ncase c : R3.theta_ja = -1 K/W\n", "7:24"),
+@pytest.mark.parametrize("line, position, message", [
+    ("resistor R3 from adc to gnd : 1 kohm, theta_ja = -50 K/W\n", "6:50", "`theta_ja` is above 0 K/W"),
+    ("resistor R3 from adc to gnd : 1 kohm, theta_ja = 0 K/W\n", "6:50", "`theta_ja` is above 0 K/W"),
+    ("resistor R3 from adc to gnd : 1 kohm\ncase c : R3.theta_ja = -1 K/W\n", "7:24", "`theta_ja` is above 0 K/W"),
+    ("resistor R3 from adc to gnd : 1 kohm, tol = -5%\n", "6:45", "`tol` is 0 % or more"),
+    ("resistor R3 from adc to gnd : 1 kohm\ncase c : R3.tol = -1%\n", "7:19", "`tol` is 0 % or more"),
 ])
-def test_hostile_thermal_resistance_must_be_positive(repo, capsys, line, position):
+def test_hostile_thermal_resistance_positive_and_tolerance_not_negative(repo, capsys, line, position, message):
+    # tol is checked in nominal mode too, not only by tolerance analysis
     repo(CIRCUIT + line)
     code, _, err = check(capsys)
     assert code == 2
-    assert err.startswith(f"bike.circuit:{position}: error: `theta_ja` is above 0 K/W")
+    assert err.startswith(f"bike.circuit:{position}: error: {message}")
 
 
 def test_hostile_opamp_rails_the_wrong_way_round(repo, capsys):
@@ -118,17 +121,6 @@ def test_hostile_opamp_rails_the_wrong_way_round(repo, capsys):
     code, _, err = check(capsys)
     assert code == 2
     assert err.startswith("bike.circuit:6:7: error: the op-amp U1 has rail_hi at 0 V, below rail_lo at 3.70 V")
-
-
-@pytest.mark.parametrize("line, position", [
-    ("resistor R3 from adc to gnd : 1 kohm, tol = -5%\n", "6:45"),
-    ("resistor R3 from adc to gnd : 1 kohm\ncase c : R3.tol = -1%\n", "7:19"),
-])
-def test_hostile_negative_tolerance_refused_in_nominal_mode(repo, capsys, line, position):
-    repo(CIRCUIT + line)
-    code, _, err = check(capsys)
-    assert code == 2
-    assert err.startswith(f"bike.circuit:{position}: error: `tol` is 0 % or more")
 
 
 def test_hostile_limit_lists_a_case_twice(repo, capsys):
