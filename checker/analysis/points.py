@@ -13,7 +13,7 @@ import shlex
 from decimal import Decimal
 from typing import Iterable, Mapping, Sequence
 
-from checker.analysis.tolerances import Tolerance, percent, primary_values, toleranced
+from checker.analysis.tolerances import Tolerance, named_deviation, primary_values, toleranced
 from checker.design import Netlist
 from checker.errors import DesignError, did_you_mean
 
@@ -45,7 +45,7 @@ def format_point(point: Iterable[tuple[str, float]]) -> str:
 def point_label(point: Iterable[tuple[str, float]]) -> str:
     """`R1 +5 %, U1.vout −2.5 %` for people; unlike `corner_label` it names every value, as a
     reproduced point must be shown whole."""
-    return ", ".join(f"{name} {percent(d)}" for name, d in point)
+    return ", ".join(named_deviation(name, d) for name, d in point)
 
 
 def _entry(text: str) -> tuple[str, Decimal]:

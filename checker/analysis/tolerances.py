@@ -83,12 +83,17 @@ def percent(deviation: float) -> str:
     return ("+" if deviation >= 0 else MINUS) + text
 
 
+def named_deviation(name: str, deviation: float) -> str:
+    """`R1 +5 %`: one toleranced value and its deviation, as every report and command shows it."""
+    return f"{name} {percent(deviation)}"
+
+
 def corner_label(deviations: Sequence[tuple[str, float]]) -> str:
     """A corner in words short enough for a table cell, most important part first.
 
     `deviations` are (part, deviation) in the order to name them; after
     MAX_CORNER_PARTS the rest is counted: "R_TOP +1 %, R_BOT −1 %, VBAT −2 % and 4 more".
     """
-    shown = ", ".join(f"{part} {percent(d)}" for part, d in deviations[:MAX_CORNER_PARTS])
+    shown = ", ".join(named_deviation(part, d) for part, d in deviations[:MAX_CORNER_PARTS])
     rest = len(deviations) - MAX_CORNER_PARTS
     return shown + (f" and {rest} more" if rest > 0 else "")

@@ -11,7 +11,7 @@ import math
 from dataclasses import dataclass
 
 from checker.analysis.points import reproduce_command
-from checker.analysis.tolerances import percent
+from checker.analysis.tolerances import named_deviation
 from checker.findings import Analysis, Finding, Findings, Outcome, Waiver, WaiverNote
 from checker.units import format_percent, format_temperature, format_value
 from checker.verdict import Verdict, judge
@@ -152,7 +152,7 @@ def method_text(outcome: Outcome) -> str:
 
 def point_texts(outcome: Outcome) -> tuple[str, ...]:
     """Every toleranced value of the point and its deviation (`R1 +5 %`), in netlist order, none left out."""
-    return tuple(f"{name} {percent(deviation)}" for name, deviation in outcome.point)
+    return tuple(named_deviation(name, deviation) for name, deviation in outcome.point)
 
 
 def reproduce_text(outcome: Outcome, path: str) -> str:
