@@ -51,6 +51,7 @@ class DeclaredValues:
 
     def __init__(self, design: Design):
         self.case = "(declared values)"
+        self.ambient = None  # no case yet: a temperature's relative margin falls back to |bound|
         self.parts = {part.name: part for part in design.parts}
 
 
@@ -478,7 +479,7 @@ def _compare(node: Compare, scope: Scope) -> Typed:
     def run(values):
         x, y = a(values), b(values)
         _finite(where, node.pos, values, x, y)
-        return margins.compare(op, x, y, dim, absolute)
+        return margins.compare(op, x, y, dim, absolute, values.ambient)
     return Typed(True, run, dim, absolute)
 
 
@@ -497,7 +498,7 @@ def _in_range(node: InRange, scope: Scope) -> Typed:
         if numbers[1] > numbers[2]:  # a range no value can be in: its ends are swapped
             raise where.error(f"the range's low end is above its high end in case `{values.case}`; "
                               "write `LOW .. HIGH`", node.low.pos)
-        return margins.in_range(*numbers, value.dim, value.absolute)
+        return margins.in_range(*numbers, value.dim, value.absolute, values.ambient)
     return Typed(True, run, value.dim, value.absolute)
 
 

@@ -22,11 +22,12 @@ on vertices.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Callable
 
 import numpy as np
 
+from checker.limits import margins
 from checker.limits.compiler import Scope, _compile
 from checker.limits.syntax import Binary, Call, Compare, InRange, Logic, Not, Num, Ref, Unary
 from checker.limits.vocabulary import MEASURES, PRIMARY
@@ -61,12 +62,32 @@ class Node:
 
 
 @dataclass(frozen=True)
+class Reference:
+    """What a side's relative margin is measured against, as for the whole comparison it came from
+    (checker.limits.margins): the `window` (low and high ends, whole) of an `in` range, and whether
+    it compares absolute temperatures (then the case's ambient sets the headroom)."""
+
+    absolute: bool = False
+    window: tuple[Leaf, Leaf] | None = None
+
+    def scale(self, value, bound, values) -> np.ndarray:
+        """The reference scale at every point, by the very rules of the scalar Verdict."""
+        ambient = values.ambient if self.absolute else None
+        if self.window is None:
+            rule = np.vectorize(lambda v, b: margins.reference_scale(v, b, ambient), otypes=[float])
+            return rule(value, bound)
+        rule = np.vectorize(lambda lo, hi, v, b: margins.window_scale(lo, hi, v, b, ambient), otypes=[float])
+        return rule(self.window[0].fn(values), self.window[1].fn(values), value, bound)
+
+
+@dataclass(frozen=True)
 class Side:
     """One one-sided comparison: margin = orient * (bound − value), orient +1 for `value <= bound`."""
 
     value: Leaf
     bound: Leaf
     orient: int
+    reference: Reference = Reference()
 
     @property
     def monotone(self) -> bool:
@@ -85,9 +106,8 @@ class Side:
         return np.maximum(np.abs(np.asarray(self.bound.fn(values), float)), np.abs(self.value.fn(values)))
 
     def scale(self, values) -> np.ndarray:
-        """|bound|, or |value| where the bound is 0: the relative margin's denominator (checker.limits.margins)."""
-        bound = np.abs(np.asarray(self.bound.fn(values), float))
-        return np.where(bound > 0, bound, np.abs(self.value.fn(values)))
+        """The relative margin's denominator: at the point where this side decides, the same as the check's."""
+        return self.reference.scale(self.value.fn(values), self.bound.fn(values), values)
 
 
 @dataclass(frozen=True)
@@ -164,14 +184,17 @@ def _condition(node, scope: Scope, sides: list[Side], dims: set):
     if isinstance(node, Not):
         return _negate_condition(_condition(node.operand, scope, sides, dims), sides)
     if isinstance(node, Compare):
-        dims.add(_unit_of(node.left, scope))
+        unit = _unit_of(node.left, scope)
+        dims.add(unit)
         value, bound = _fitting(_number(node.left, scope), _number(node.right, scope))
-        return _pair(value, bound, 1 if node.op in ("<=", "<") else -1, sides)
+        return _pair(value, bound, 1 if node.op in ("<=", "<") else -1, sides, Reference(unit[1]))
     if isinstance(node, InRange):
-        dims.add(_unit_of(node.value, scope))
-        value = _number(node.value, scope)
-        low = _pair(*_fitting(value, _number(node.low, scope)), -1, sides)
-        high = _pair(*_fitting(value, _number(node.high, scope)), 1, sides)
+        unit = _unit_of(node.value, scope)
+        dims.add(unit)
+        value, low_end, high_end = (_number(child, scope) for child in (node.value, node.low, node.high))
+        reference = Reference(unit[1], (_whole(low_end), _whole(high_end)))
+        low = _pair(*_fitting(value, low_end), -1, sides, reference)
+        high = _pair(*_fitting(value, high_end), 1, sides, reference)
         return Node("min", (low, high))
     raise TypeError(f"not a condition: {type(node).__name__}")  # compile_condition rejected it already
 
@@ -186,7 +209,7 @@ def _negate_condition(formula, sides: list[Side]):
     if isinstance(formula, Node):
         return Node(_FLIP[formula.op], tuple(_negate_condition(child, sides) for child in formula.children))
     side = sides[formula]  # every side belongs to one place in the formula: flip it there
-    sides[formula] = Side(side.value, side.bound, -side.orient)
+    sides[formula] = replace(side, orient=-side.orient)
     return formula
 
 
@@ -197,15 +220,15 @@ def _fitting(value, bound) -> tuple:
     return (_whole(value), bound) if len(_leaves(value)) >= len(_leaves(bound)) else (value, _whole(bound))
 
 
-def _pair(value, bound, orient: int, sides: list[Side]):
+def _pair(value, bound, orient: int, sides: list[Side], reference: Reference):
     """The formula of orient * (bound − value) over the pieces of value and bound."""
     if isinstance(value, Node):  # the margin falls as value rises (orient +1)
         op = _FLIP[value.op] if orient > 0 else value.op
-        return Node(op, tuple(_pair(child, bound, orient, sides) for child in value.children))
+        return Node(op, tuple(_pair(child, bound, orient, sides, reference) for child in value.children))
     if isinstance(bound, Node):
         op = bound.op if orient > 0 else _FLIP[bound.op]
-        return Node(op, tuple(_pair(value, child, orient, sides) for child in bound.children))
-    sides.append(Side(value, bound, orient))
+        return Node(op, tuple(_pair(value, child, orient, sides, reference) for child in bound.children))
+    sides.append(Side(value, bound, orient, reference))
     return len(sides) - 1
 
 

@@ -69,7 +69,7 @@ def test_reference_limits_divider_end_to_end(tmp_path):
     v_out = V_IN * R_BOT / (R_TOP + R_BOT)  # 1.18299 V
     (adc,) = found["adc-batt-range"].outcomes
     assert adc.margin == pytest.approx(min(v_out - 0.1, 1.6 - v_out))  # 0.41701 V, to the upper end
-    assert adc.bound == 1.6 and adc.relative == pytest.approx((1.6 - v_out) / 1.6)
+    assert adc.bound == 1.6 and adc.relative == pytest.approx((1.6 - v_out) / 0.75)  # half-width of 0.1 .. 1.6 V
     assert found["adc-batt-range"].status == "pass"
 
     (ratio,) = found["sense-ratio"].outcomes  # 47 / 147 = 0.3197 < 0.33: a warning

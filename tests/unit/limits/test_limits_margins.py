@@ -61,9 +61,9 @@ def test_limits_margin_across_units_is_decided_by_relative_margin(make):
 
 
 def test_limits_relative_margin_scales():
-    assert margins.relative_margin(1.0, 2.0, -4.0) == 0.25  # over |bound|
-    assert margins.relative_margin(-0.5, 2.0, 0.0) == -0.25  # bound 0: over |value|
-    assert margins.relative_margin(0.0, 0.0, 0.0) == 0.0
+    assert margins.relative_margin(1.0, margins.reference_scale(2.0, -4.0)) == 0.25  # over |bound|
+    assert margins.relative_margin(-0.5, margins.reference_scale(2.0, 0.0)) == -0.25  # bound 0: over |value|
+    assert margins.relative_margin(0.0, margins.reference_scale(0.0, 0.0)) == 0.0
 
 
 def test_limits_temperature_outcomes_are_absolute_kelvin(make):
@@ -72,7 +72,7 @@ def test_limits_temperature_outcomes_are_absolute_kelvin(make):
     (outcome,) = finding.outcomes
     assert outcome.absolute and outcome.unit == "K"
     assert outcome.value == pytest.approx(298.15) and outcome.margin == pytest.approx(5.0)
-    assert outcome.relative == pytest.approx(5.0 / 303.15)  # against the kelvin value of the bound
+    assert outcome.relative == pytest.approx(1.0)  # 5 K of the 5 K from the 25 degC ambient to the bound
 
 
 finite = st.floats(min_value=-1e6, max_value=1e6, allow_nan=False)

@@ -61,7 +61,7 @@ def test_limits_review_range_of_temperatures_takes_the_nearer_end(make):
     assert inside.absolute and inside.unit == "K"
     assert inside.bound == pytest.approx(kelvin("60"))
     assert inside.margin == pytest.approx(kelvin("60") - 300.0)
-    assert inside.relative == pytest.approx((kelvin("60") - 300.0) / kelvin("60"))  # against the bound in K
+    assert inside.relative == pytest.approx((kelvin("60") - 300.0) / 40.0)  # over the window's half-width, 40 K
 
 
 def test_limits_review_not_of_a_temperature_range_holds_outside(make):
