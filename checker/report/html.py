@@ -16,6 +16,7 @@ from checker import __version__
 from checker.design import OperatingPoint, PartResult
 from checker.findings import CircuitResult, Findings
 from checker.report.overview import margin_overview
+from checker.report.solve import DIGITS
 from checker.report.svg import Chart, margin_chart
 from checker.report.view import NO_TEXT, STATUS_WORDS, ReportView, Row, build_view, plural
 from checker.units import format_temperature, format_value
@@ -40,6 +41,11 @@ class CircuitView:
     limits: tuple[tuple[Row, Chart], ...]
 
 
+def _reading(number: float, unit: str) -> str:
+    """A net voltage or part quantity, to the significant figures of the `solve` table (its DIGITS)."""
+    return format_value(number, unit, DIGITS)
+
+
 def _case_heading(point: OperatingPoint) -> str:
     return f"{point.case} ({format_temperature(point.ambient)})"
 
@@ -60,7 +66,7 @@ def _union(keys_per_case: list[list[str]]) -> list[str]:
 def _net_rows(points: tuple[OperatingPoint, ...]) -> tuple[TableRow, ...]:
     names = _union([list(p.nets) for p in points])
     return tuple(TableRow(name, "voltage", tuple(
-        format_value(p.nets[name], "V") if name in p.nets else NO_TEXT for p in points)) for name in names)
+        _reading(p.nets[name], "V") if name in p.nets else NO_TEXT for p in points)) for name in names)
 
 
 def _part_quantities(result: PartResult | None, pin_names: list[str]) -> list[tuple[str, str]]:
@@ -69,11 +75,11 @@ def _part_quantities(result: PartResult | None, pin_names: list[str]) -> list[tu
         return [(q, NO_TEXT) for q in ["voltage", "current"] if not pin_names] + \
                [(f"current into {pin}", NO_TEXT) for pin in pin_names] + [("power", NO_TEXT)]
     if result.voltage is not None:
-        return [("voltage", format_value(result.voltage, "V")),
-                ("current", format_value(result.current or 0.0, "A")),
-                ("power", format_value(result.power, "W"))]
-    return [(f"current into {pin}", format_value(result.pins[pin], "A") if pin in result.pins else NO_TEXT)
-            for pin in pin_names] + [("power", format_value(result.power, "W"))]
+        return [("voltage", _reading(result.voltage, "V")),
+                ("current", _reading(result.current or 0.0, "A")),
+                ("power", _reading(result.power, "W"))]
+    return [(f"current into {pin}", _reading(result.pins[pin], "A") if pin in result.pins else NO_TEXT)
+            for pin in pin_names] + [("power", _reading(result.power, "W"))]
 
 
 def _part_rows(points: tuple[OperatingPoint, ...]) -> tuple[TableRow, ...]:

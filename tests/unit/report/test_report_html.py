@@ -9,6 +9,7 @@ import numpy as np
 from report_bike_light import bike_light, bike_light_with_base, hostile, operating_points
 
 from checker.report import render_html
+from checker.report.solve import DIGITS
 from checker.report.svg import PLOT_LEFT, PLOT_RIGHT, margin_chart
 from checker.units import format_value
 
@@ -95,11 +96,11 @@ def test_operating_point_of_every_case_is_tabulated():
     shown = " ".join(parse(render_html(bike_light())).text)
     for point in operating_points():
         for net, volts in point.nets.items():
-            assert format_value(volts, "V") in shown
+            assert format_value(volts, "V", DIGITS) in shown
         for name, result in point.parts.items():
-            assert format_value(result.power, "W") in shown
+            assert format_value(result.power, "W", DIGITS) in shown
             for current in result.pins.values():
-                assert format_value(abs(current), "A") in shown
+                assert format_value(abs(current), "A", DIGITS) in shown
     assert "fresh_cells (25.0 °C)" in shown and "cold_night (-10.0 °C)" in shown
     assert "current into b" in shown  # the transistor's pin currents
 
