@@ -24,8 +24,9 @@ NO_HEADROOM = 1e-9
 
 def reference_scale(value: float, bound: float, ambient: float | None = None) -> float:
     """What a one-sided margin is relative to. `ambient` (K) only for absolute temperatures: then the
-    headroom the design had before dissipating anything, |bound - ambient|; otherwise, or when that
-    headroom is nil, |bound|, or |value| when the bound is 0 (kelvin does not measure headroom)."""
+    headroom the design had before dissipating anything, |bound - ambient|, since a bound's distance
+    from absolute zero says nothing about it; otherwise, or with no headroom, |bound|, or |value|
+    when the bound is 0."""
     if ambient is not None:
         headroom = abs(bound - ambient)
         if headroom > NO_HEADROOM * abs(bound):
