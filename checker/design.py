@@ -21,7 +21,9 @@ class Part:
     source voltage or current, load current/power/resistance, ...) and `value_unit`
     says which: "ohm", "V", "A", "W", "F", "H" (None when the kind has no primary
     value). Bare words (`open`, `npn`, `nmos`) are in `flags`. A property written
-    `vf = 2.0 V at 10 mA` is `props["vf"] = 2.0` and `at["vf"] = 0.01`.
+    `vf = 2.0 V at 10 mA` is `props["vf"] = 2.0` and `at["vf"] = 0.01`. `spots` says where
+    the part's items were written, for messages that point at the token: each pin name ->
+    its net, "value" -> the primary value, and each property's name -> its value.
     """
 
     name: str
@@ -34,6 +36,7 @@ class Part:
     at: Mapping[str, float] = field(default_factory=dict)
     tags: frozenset[str] = frozenset()
     location: Location | None = field(default=None, compare=False)
+    spots: Mapping[str, Location] = field(default_factory=dict, compare=False)
 
     def net(self, pin: str) -> str:
         """The net on `pin`; KeyError if the kind has no such pin."""

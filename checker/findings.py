@@ -13,6 +13,9 @@ from checker.design import OperatingPoint
 from checker.errors import Location
 
 
+LINT_SOURCE = "lint"  # the `source` of the built-in rules of design lints (`checker.lints`)
+
+
 @dataclass(frozen=True)
 class Limit:
     """One limit as written in a limits file (or a built-in pack)."""
@@ -48,8 +51,10 @@ class Outcome:
 
     `value` and `bound` are the two sides of the comparison that decided the margin
     (for `x in lo .. hi`, x and the nearer end). `margin` is positive when the
-    limit holds; `relative` is the margin over the limit's scale (|bound|, or the
-    value's magnitude when the bound is zero). `unit` is the display symbol of the
+    limit holds; `relative` is the margin over the comparison's reference scale
+    (docs/limits.md, "Relative margin"): a window's half-width; for absolute temperatures
+    the headroom from the case's ambient to the bound; otherwise |bound|, or |value| when
+    the bound is zero. `unit` is the display symbol of the
     three numbers; `absolute` marks temperatures to show in °C.
 
     Under worst-case analysis `method` says how the worst was found ("vertices",
@@ -106,6 +111,11 @@ class Finding:
         return min(self.outcomes, key=lambda outcome: outcome.margin)
 
     @property
+    def lint(self) -> bool:
+        """A design lint (`checker.lints`) rather than a limit: its `limit.about` is its whole message."""
+        return self.limit.source == LINT_SOURCE
+
+    @property
     def key(self) -> tuple[str, str, str]:
         """Identity across revisions: limit id, circuit, item."""
         return (self.limit.id, self.circuit, self.item or "")
@@ -155,6 +165,16 @@ class Findings:
 
     def with_status(self, status: str) -> tuple[Finding, ...]:
         return tuple(f for f in self.findings if f.status == status)
+
+    @property
+    def limit_findings(self) -> tuple[Finding, ...]:
+        """The findings of limits, without design lints."""
+        return tuple(f for f in self.findings if not f.lint)
+
+    @property
+    def lints(self) -> tuple[Finding, ...]:
+        """The design lints that fired (`checker.lints`), waived ones included."""
+        return tuple(f for f in self.findings if f.lint)
 
     @property
     def failures(self) -> tuple[Finding, ...]:

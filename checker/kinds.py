@@ -42,6 +42,7 @@ class Prop:
     temperature: bool = False
     allowed: Callable[[float], bool] | None = None
     rule: str = ""
+    hint: str = ""  # a note beside the error of a value outside `allowed`
 
 
 @dataclass(frozen=True)
@@ -80,8 +81,11 @@ COMMON_PROPS: dict[str, Prop] = {
     "tj_max": Prop(KELVIN, temperature=True),
 }
 
-# Checked in every mode, not only when tolerance analysis reads it (which also wants it below 100 %).
-_TOL = Prop(DIMENSIONLESS, allowed=lambda value: value >= 0.0, rule="is 0 % or more: a tolerance is a band's half-width")
+# Checked in every mode, not only when tolerance analysis reads it: a band reaching 100 % would let
+# the value reach zero (a resistor into a short), which no part's tolerance means.
+_TOL = Prop(DIMENSIONLESS, allowed=lambda value: 0.0 <= value < 1.0,
+            rule="is from 0 % to below 100 %: a tolerance is the half-width of a band around the value",
+            hint="a bare number is a fraction (`tol = 5` is 500 %); write a percentage with `%`: `tol = 5%`")
 _DIODE_PROPS = {
     "isat": Prop(AMPERE), "ideality": Prop(DIMENSIONLESS), "rseries": Prop(OHM),
     "vf": Prop(VOLT, at=AMPERE), "vmax": Prop(VOLT), "imax": Prop(AMPERE),
@@ -127,4 +131,4 @@ def check_range(kind: Kind, name: str, value: float, location: Location | None) 
     """DesignError at `location` when `value` (SI) lies outside what property `name` of `kind` allows."""
     spec = kind.prop(name)
     if spec is not None and spec.allowed is not None and not spec.allowed(value):
-        raise DesignError(f"`{name}` {spec.rule}", location)
+        raise DesignError(f"`{name}` {spec.rule}", location, (spec.hint,) if spec.hint else ())

@@ -4,7 +4,8 @@ Every output (exit code, terminal summary, Markdown, HTML, JSON, JUnit, SARIF,
 annotations) reads this one `Verdict`, so a green check can never sit beside a red
 report. The rules (docs/ci.md, "One verdict"):
 
-- a finding with status "fail" counts; with `strict`, a "warn" counts too;
+- a finding with status "fail" counts; with `strict`, a "warn" counts too (a design lint,
+  `checker.lints`, is always a "warn");
 - with `fail_on="new"`, a finding counts only when it is not "unchanged" against the
   base (without a base every finding is new);
 - an expired waiver always counts; with `strict`, an unused waiver counts too;
@@ -72,7 +73,8 @@ def _reasons(findings: Findings, policy: Policy) -> list[str]:
     """What fails the check, one phrase per kind, most serious first."""
     counted = [f for f in findings.findings if policy.counts(f)]
     fails = sum(1 for f in counted if f.status == "fail")
-    warns = len(counted) - fails
+    lints = sum(1 for f in counted if f.lint)
+    warns = len(counted) - fails - lints
     expired = len(findings.expired_waivers)
     unused = len(findings.unused_waivers) if policy.strict else 0
     new = policy.fail_on == "new" and findings.base_ref is not None
@@ -83,6 +85,9 @@ def _reasons(findings: Findings, policy: Policy) -> list[str]:
     if warns:
         reasons.append(f"{_plural(warns, 'new warning' if new else 'warning')} {_verb(warns, 'fails', 'fail')} "
                        "under --strict")
+    if lints:
+        reasons.append(f"{_plural(lints, 'new design lint' if new else 'design lint')} "
+                       f"{_verb(lints, 'fails', 'fail')} under --strict")
     if expired:
         reasons.append(f"{_plural(expired, 'waiver')} {_verb(expired, 'has', 'have')} expired")
     if unused:
@@ -97,10 +102,11 @@ def _passing_headline(findings: Findings, policy: Policy) -> str:
     if remaining:
         return (f"this change adds no failure; {_plural(remaining, 'existing failure')} "
                 f"{_verb(remaining, 'remains', 'remain')}")
-    total = len(findings.findings)
+    limits = findings.limit_findings
+    total = len(limits)
     if not total:
         return "no limits to check"
-    if len(findings.with_status("pass")) < total:  # warnings or waivers remain: "all hold" would overstate it
+    if sum(1 for f in limits if f.status == "pass") < total:  # warnings or waivers: "all hold" would overstate it
         return "no limit fails"
     return f"all {total} limits hold" if total > 1 else "the 1 limit holds"
 

@@ -22,7 +22,8 @@ from checker.analysis.worstcase import DEFAULT_VERTEX_VALUES, MAX_TOLERANCED_PAR
 from checker.design import Design, OperatingPoint
 from checker.errors import NodegateError
 from checker.findings import Analysis, CircuitResult, Finding, Findings, Outcome
-from checker.limits.engine import LimitSet
+from checker.limits.engine import LimitSet, names_used
+from checker.lints import lint_circuit
 from checker.limits.waivers import apply_waivers
 from checker.solver import Cache, solve_cases
 
@@ -118,9 +119,10 @@ def _findings(limit_set: LimitSet, results: dict[Key, Result]) -> list[Finding]:
 
 def analyse(limit_set: LimitSet, designs: Sequence[Design], today: datetime.date,
             analysis: Analysis = Analysis(), progress: Callable[[str], None] | None = None) -> Findings:
-    """Solve every design, evaluate every compiled limit under `analysis`, apply waivers."""
+    """Solve every design, evaluate every compiled limit under `analysis`, lint every design
+    (`checker.lints`, on the nominal operating points), apply waivers."""
     report = progress or (lambda message: None)
-    circuits, results = [], {}
+    circuits, results, lints = [], {}, []
     for design in designs:
         report(f"solving {design.name}: {len(design.netlists)} case(s), {len(design.parts)} part(s)")
         with located_at(design):
@@ -134,6 +136,7 @@ def analyse(limit_set: LimitSet, designs: Sequence[Design], today: datetime.date
                 results.update(_monte_carlo(design, points, targets, analysis, report))
             else:
                 results.update(_nominal(points, targets))
+            lints.extend(lint_circuit(design, points, names_used(limit_set, design.name)))
     report(f"evaluated {len(limit_set.limits)} limit(s)")
-    findings, notes = apply_waivers(_findings(limit_set, results), limit_set.waivers, today)
+    findings, notes = apply_waivers(_findings(limit_set, results) + lints, limit_set.waivers, today)
     return Findings(findings=findings, circuits=tuple(circuits), waiver_notes=notes, analysis=analysis)

@@ -14,7 +14,6 @@ from dataclasses import dataclass
 from typing import Mapping, Sequence
 
 from checker.design import Netlist, Part
-from checker.errors import DesignError
 
 MAX_CORNER_PARTS = 3  # parts named in a corner's description before "and N more"
 MINUS = "\u2212"
@@ -42,15 +41,13 @@ def _moved_value(part: Part) -> str | None:
 
 
 def toleranced(netlist: Netlist) -> tuple[Tolerance, ...]:
-    """Every part of the case with a tolerance above zero, in netlist order; DesignError for tol outside [0, 1)."""
+    """Every part of the case with a tolerance above zero, in netlist order (the language keeps `tol`
+    from 0 % to below 100 %, `checker.kinds`)."""
     found = []
     for part in netlist.parts:
         tol = part.props.get("tol")
         if tol is None or _moved_value(part) is None:
             continue
-        if not 0.0 <= tol < 1.0:
-            raise DesignError(f"part {part.name} has tol = {tol * 100:g} %: a tolerance must be "
-                              "from 0 % to below 100 %", part.location)
         if tol > 0.0:
             found.append(Tolerance(part.name, float(tol), _moved_value(part)))
     return tuple(found)

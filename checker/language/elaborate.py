@@ -127,8 +127,10 @@ class _Expander:
             elif statement.kind.text in KINDS:
                 kind = KINDS[statement.kind.text]
                 check_form(statement, kind)
-                pins = self.nets(ordered_nets(statement, kind.pins, f"a {kind.name}"), prefix, ports)
-                parts.append(_in_range(statement, kind, build_part(statement, kind, prefix + name, pins, scope)))
+                written = ordered_nets(statement, kind.pins, f"a {kind.name}")
+                pins = self.nets(written, prefix, ports)
+                parts.append(_in_range(statement, kind, build_part(statement, kind, prefix + name, pins, scope,
+                                                                   written)))
                 self.counted(statement)
             else:
                 raise unknown_kind(statement.kind, self.blocks)

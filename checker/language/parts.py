@@ -51,9 +51,12 @@ def check_form(statement: PartStatement, kind: Kind) -> None:
         raise DesignError(f"a {kind.name} is written `{kind.name} NAME ({pins})`", statement.kind.location)
 
 
-def build_part(statement: PartStatement, kind: Kind, name: str, nets: tuple[str, ...], scope: Scope) -> Part:
-    """A Part in SI from its statement, with value, flags, properties and tags checked."""
+def build_part(statement: PartStatement, kind: Kind, name: str, nets: tuple[str, ...], scope: Scope,
+               net_names: tuple[Name, ...] = ()) -> Part:
+    """A Part in SI from its statement, with value, flags, properties and tags checked; `net_names`
+    are the net tokens as written, in pin order, whose places the part keeps (`Part.spots`)."""
     value = unit = None
+    spots = {pin: net.location for pin, net in zip(kind.pins, net_names)}
     flags, tags, props, at = set(), set(), {}, {}
     for index, prop in enumerate(statement.props):
         word = prop.value.bare_word() if prop.key is None else None
@@ -61,6 +64,7 @@ def build_part(statement: PartStatement, kind: Kind, name: str, nets: tuple[str,
             flags = add_flag(kind, flags, word, prop.location)
         elif prop.key is None and index == 0:
             value, unit = primary_value(kind, prop.value, scope)
+            spots["value"] = prop.value.location
         elif prop.key is None:
             raise DesignError("only the first item may be the part's value; write `KEY = VALUE`", prop.location)
         elif prop.key.text == "tag":
@@ -69,10 +73,11 @@ def build_part(statement: PartStatement, kind: Kind, name: str, nets: tuple[str,
             if prop.key.text in props:
                 raise DesignError(f"`{prop.key.text}` is given twice", prop.key.location)
             props[prop.key.text], condition = property_value(kind, prop.key, prop.value, prop.at, scope)
+            spots[prop.key.text] = prop.value.location
             if condition is not None:
                 at[prop.key.text] = condition
     part = Part(name, kind.name, tuple(zip(kind.pins, nets)), value, unit, frozenset(flags),
-                props, at, frozenset(tags), statement.name.location)
+                props, at, frozenset(tags), statement.name.location, spots)
     check_complete(kind, part, statement.name.location)
     return part
 

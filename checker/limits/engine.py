@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import dataclasses
 import datetime
+import re
 from dataclasses import dataclass
 from typing import Callable, Iterable, Mapping, Sequence
 
@@ -31,6 +32,7 @@ from checker.limits.margins import Verdict
 from checker.limits.sides import Split, split_check
 from checker.limits.syntax import Locator, parse_expression
 from checker.limits.waivers import apply_waivers
+from checker.lints import IDS as LINT_IDS
 
 
 @dataclass(frozen=True)
@@ -181,10 +183,20 @@ def _known_circuits(names: Iterable[str] | None, designs: Sequence[Design], fall
         _known(name, circuits, "circuit", fallback, (f"circuits: {', '.join(circuits)}",))
 
 
+NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_.]*")
+
+
+def names_used(limit_set: LimitSet, circuit: str) -> set[str]:
+    """Every word the checks and `where` conditions applying to `circuit` are written with: a net
+    among them is one a limit names (the single-connection lint leaves it alone)."""
+    return {word for compiled in limit_set.limits if compiled.circuit == circuit
+            for text in (compiled.limit.check, compiled.limit.where or "") for word in NAME.findall(text)}
+
+
 def _check_waivers(waivers: Sequence[Waiver], limits: Sequence[Limit], designs: Sequence[Design]) -> None:
     """Every name a waiver uses must exist: its limit anywhere, its circuits, and its case and part
     in the circuits it is narrowed to."""
-    ids = [limit.id for limit in limits]
+    ids = [limit.id for limit in limits] + list(LINT_IDS)
     for waiver in waivers:
         _known(waiver.limit, ids, "limit with id", waiver.location)
         if not designs:
@@ -194,7 +206,11 @@ def _check_waivers(waivers: Sequence[Waiver], limits: Sequence[Limit], designs: 
         if waiver.case is not None:
             _known(waiver.case, {case for design in mine for case in design.cases}, "case", waiver.location)
         if waiver.part is not None:
-            _known(waiver.part, {part.name for design in mine for part in design.parts}, "part", waiver.location)
+            named = {part.name for design in mine for part in design.parts}
+            if waiver.limit == "lint.single-connection":  # its items are nets
+                named = {net for design in mine for part in design.parts for net in part.nets}
+            _known(waiver.part, named, "net" if waiver.limit == "lint.single-connection" else "part",
+                   waiver.location)
 
 
 def compile_limits(limit_files: Sequence[LimitFile], designs: Sequence[Design]) -> LimitSet:

@@ -1,6 +1,6 @@
 """The Markdown report, for the pull-request comment and the CI job summary.
 
-Layout (our own): the verdict, failing limits worst first, warnings, waived limits,
+Layout (our own): the verdict, failing limits worst first, warnings, design lints, waived limits,
 limits fixed against the base revision, then every limit in a collapsed section, and
 the caution line. Under the failing and warning tables, each limit whose worst case has
 a tolerance point or no operating point gets a few lines: the solver's message, the
@@ -147,6 +147,8 @@ def _blocks(view: ReportView) -> list[_Block]:
         blocks += [_measure_block("Failing limits", view.failures, view)] + _points_block(view.failures)
     if view.warnings:
         blocks += [_measure_block("Warnings", view.warnings, view)] + _points_block(view.warnings)
+    if view.lints:
+        blocks.append(_lints_block(view))
     if view.expired or view.unused:
         head = [] if view.warnings else ["### Warnings", ""]
         blocks.append(_Block(head, [_note_line(n) for n in view.expired + view.unused], [""]))
@@ -163,10 +165,18 @@ def _blocks(view: ReportView) -> list[_Block]:
     return blocks
 
 
+def _lints_block(view: ReportView) -> _Block:
+    """Design lints: where each slip is written and what it looks like (`checker.lints`)."""
+    with_base = view.base_ref is not None
+    titles = ["circuit", "lint", "on", "where", "message"] + (["change"] if with_base else [])
+    body = [_table_row([r.circuit, r.limit, r.item, r.where, r.about] + ([r.change] if with_base else []))
+            for r in view.lints]
+    return _Block(["### Design lints", ""] + _table_head(titles), body, [""])
+
+
 def _verdict_lines(view: ReportView) -> list[str]:
     verdict = view.verdict
-    tail = ", ".join(verdict.details)
-    lines = [f"**nodegate: {verdict.headline}**" + (f" {tail}" if tail else "")]
+    lines = [f"**nodegate: {verdict.headline}**{verdict.tail}"]
     if verdict.base:
         lines += ["", escape(verdict.base)]
     return lines + ["", escape(view.analysis), ""]

@@ -18,7 +18,9 @@ def _where(row: Row) -> str:
 
 def _finding_line(word: str, row: Row) -> str:
     """`FAIL tail_light: led-current, case cold (R1 +5 %): 13.1 mA vs limit 15.0 mA, margin -1.90 mA (-12.7 %)`,
-    or `..., case cold (R1 +5 %): no operating point: MESSAGE`."""
+    or `..., case cold (R1 +5 %): no operating point: MESSAGE`; a design lint gives its place and message."""
+    if row.lint:
+        return f"{word} {_where(row)}" + (f" at {row.where}" if row.where else "") + f": {row.about}"
     measured = (f"{row.value}: {row.error}" if row.error else
                 f"{row.value} vs limit {row.bound}, margin {row.margin} ({row.relative})")
     line = f"{word} {_where(row)}, case {row.case}: {measured}"
@@ -38,11 +40,12 @@ def _one_line(text: str) -> str:
 
 
 def summary_lines(findings: Findings, verdict: Verdict | None = None) -> list[str]:
-    """One line per failing limit, then warnings and waiver problems, then the verdict."""
+    """One line per failing limit, then warnings, design lints and waiver problems, then the verdict."""
     view = build_view(findings, verdict)
     lines = [_finding_line("FAIL", row) for row in view.failures]
     lines += [_note_line(note) for note in view.expired]
     lines += [_finding_line("WARN", row) for row in view.warnings]
+    lines += [_finding_line("LINT", row) for row in view.lints]
     lines += [_note_line(note) for note in view.unused]
     lines.append(view.verdict.text + "." + (f" {view.verdict.base}" if view.verdict.base else ""))
     return [_one_line(line) for line in lines]

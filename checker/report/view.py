@@ -195,6 +195,17 @@ class Row:
     error: str = ""  # the solver's message when the worst outcome has no operating point
     reproduce: str = ""  # the command that solves a failing worst outcome's point
 
+    @property
+    def lint(self) -> bool:
+        """A design lint (`checker.lints`): its `about` is the whole message."""
+        return self.finding.lint
+
+    @property
+    def where(self) -> str:
+        """`path:line:col` of the limit's `id:` line, or of the token a design lint points at."""
+        location = self.finding.limit.location
+        return str(location) if location else ""
+
 
 @dataclass(frozen=True)
 class NoteRow:
@@ -220,17 +231,25 @@ class VerdictText:
     base: str
 
     @property
+    def tail(self) -> str:
+        """What follows the headline: ` in 2 circuits, 1 warning`, or `, 1 design lint` when no place leads."""
+        tail = ", ".join(self.details)
+        if not tail:
+            return ""
+        return f" {tail}" if tail.startswith(("in ", "(")) else f", {tail}"
+
+    @property
     def text(self) -> str:
         """The verdict as one plain sentence."""
-        tail = ", ".join(self.details)
-        return f"nodegate: {self.headline}" + (f" {tail}" if tail else "")
+        return f"nodegate: {self.headline}{self.tail}"
 
 
 @dataclass(frozen=True)
 class ReportView:
     verdict: VerdictText
     failures: tuple[Row, ...]
-    warnings: tuple[Row, ...]
+    warnings: tuple[Row, ...]  # warning-severity limits that fail
+    lints: tuple[Row, ...]  # design lints that fired and are not waived (`checker.lints`)
     waived: tuple[Row, ...]
     expired: tuple[NoteRow, ...]
     unused: tuple[NoteRow, ...]
@@ -318,7 +337,8 @@ def _where_details(findings: Findings, verdict: Verdict) -> list[str]:
     counted = {f.circuit for f in findings.findings if verdict.counts(f)}
     if counted:
         return [f"in {plural(len(counted), 'circuit')}"]
-    total, holding = len(findings.findings), len(findings.with_status("pass"))
+    limits = findings.limit_findings
+    total, holding = len(limits), sum(1 for f in limits if f.status == "pass")
     if not verdict.passed or not total:
         return []
     circuits = plural(len(findings.circuits), "circuit")
@@ -329,7 +349,9 @@ def make_verdict(findings: Findings, verdict: Verdict) -> VerdictText:
     """The verdict's words: its headline, its other reasons, then counts the reasons do not give
     already (warnings and unused waivers count as reasons under --strict)."""
     strict = verdict.policy.strict
-    counts = [(0 if strict else len(findings.warnings), "warning", None),
+    lints = sum(1 for f in findings.lints if f.status == "warn")
+    counts = [(0 if strict else len(findings.warnings) - lints, "warning", None),
+              (0 if strict else lints, "design lint", None),
               (len(findings.with_status("waived")), "waived", "waived"),
               (0 if strict else len(findings.unused_waivers), "unused waiver", None)]
     details = (_where_details(findings, verdict) + list(verdict.reasons[1:])
@@ -360,12 +382,13 @@ def build_view(findings: Findings, verdict: Verdict | None = None) -> ReportView
     return ReportView(
         verdict=make_verdict(findings, verdict or judge(findings)),
         failures=_worst_first([r for r in rows if r.status == "fail"]),
-        warnings=_worst_first([r for r in rows if r.status == "warn"]),
+        warnings=_worst_first([r for r in rows if r.status == "warn" and not r.lint]),
+        lints=tuple(r for r in rows if r.lint and r.status != "waived"),
         waived=tuple(r for r in rows if r.status == "waived"),
         expired=tuple(make_note(n) for n in findings.expired_waivers),
         unused=tuple(make_note(n) for n in findings.unused_waivers),
         fixed=tuple(make_row(f, paths.get(f.circuit, "")) for f in findings.fixed),
-        rows=tuple(rows),
+        rows=tuple(r for r in rows if not r.lint),
         base_ref=findings.base_ref,
         analysis=analysis_sentence(findings.analysis),
         with_drivers=findings.analysis.mode != "nominal",

@@ -104,11 +104,12 @@ def test_hostile_case_cannot_turn_a_voltage_source_into_a_current_source(repo, c
     ("resistor R3 from adc to gnd : 1 kohm, theta_ja = -50 K/W\n", "6:50", "`theta_ja` is above 0 K/W"),
     ("resistor R3 from adc to gnd : 1 kohm, theta_ja = 0 K/W\n", "6:50", "`theta_ja` is above 0 K/W"),
     ("resistor R3 from adc to gnd : 1 kohm\ncase c : R3.theta_ja = -1 K/W\n", "7:24", "`theta_ja` is above 0 K/W"),
-    ("resistor R3 from adc to gnd : 1 kohm, tol = -5%\n", "6:45", "`tol` is 0 % or more"),
-    ("resistor R3 from adc to gnd : 1 kohm\ncase c : R3.tol = -1%\n", "7:19", "`tol` is 0 % or more"),
+    ("resistor R3 from adc to gnd : 1 kohm, tol = -5%\n", "6:45", "`tol` is from 0 % to below 100 %"),
+    ("resistor R3 from adc to gnd : 1 kohm\ncase c : R3.tol = -1%\n", "7:19", "`tol` is from 0 % to below 100 %"),
+    ("resistor R3 from adc to gnd : 1 kohm\ncase c : R3.tol = 150%\n", "7:19", "`tol` is from 0 % to below 100 %"),
 ])
-def test_hostile_thermal_resistance_positive_and_tolerance_not_negative(repo, capsys, line, position, message):
-    # tol is checked in nominal mode too, not only by tolerance analysis
+def test_hostile_thermal_resistance_positive_and_tolerance_in_its_band(repo, capsys, line, position, message):
+    # tol is checked in nominal mode too, not only by tolerance analysis: from 0 % to below 100 %
     repo(CIRCUIT + line)
     code, _, err = check(capsys)
     assert code == 2
