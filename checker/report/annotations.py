@@ -59,14 +59,19 @@ def _command(level: str, location: Location | None, title: str, message: str, ro
     return f"::{level} {','.join(props)}::{escape_data(message)}"
 
 
-def _finding_message(finding: Finding, base_ref: str | None) -> str:
-    """What failed and where, in the shared view's words: the numbers, or that there is no operating point."""
+def _measured_message(finding: Finding) -> str:
     worst, row = finding.worst, make_row(finding)
     where = f"{finding.circuit} / {finding.item}" if finding.item else finding.circuit
     measured = (f"{row.value}: {row.error}" if row.error else
                 f"{row.value} against {row.bound}, margin {row.margin} ({row.relative})")
-    text = (f"{finding.limit.about} ({where}, case {worst.case}"
+    return (f"{finding.limit.about} ({where}, case {worst.case}"
             + (f", corner {worst.corner}" if worst.corner else "") + f"): {measured}")
+
+
+def _finding_message(finding: Finding, base_ref: str | None) -> str:
+    """What failed and where, in the shared view's words: the numbers, or that there is no operating point;
+    a design lint's own message."""
+    text = finding.limit.about if finding.lint else _measured_message(finding)
     if finding.change == "new" and base_ref:
         text += f"; new since {base_ref}"
     return text

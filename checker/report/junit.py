@@ -31,7 +31,9 @@ _NOT_XML = re.compile("[^\t\n\r\x20-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
 
 def worst_sentence(row: Row) -> str:
     """`case cold (R1 +5 %): value 13.1 mA vs bound 15.0 mA, margin -1.90 mA (-12.7 %)`,
-    or `case cold (R1 +5 %): no operating point: MESSAGE`."""
+    or `case cold (R1 +5 %): no operating point: MESSAGE`; for a design lint, where it is written."""
+    if row.lint:
+        return f"at {row.where}" if row.where else ""
     if row.error:
         return f"case {row.case}: {row.value}: {row.error}"
     return (f"case {row.case}: value {row.value} vs bound {row.bound}, "

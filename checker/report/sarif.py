@@ -34,7 +34,7 @@ from urllib.parse import quote
 
 from checker import __version__
 from checker.errors import Location
-from checker.findings import Finding, Findings, Limit
+from checker.findings import LINT_SOURCE, Finding, Findings, Limit
 from checker.report.junit import worst_sentence
 from checker.report.view import circuit_paths, make_row, make_verdict
 from checker.verdict import Verdict, judge
@@ -67,7 +67,10 @@ def physical_location(location: Location, root: Path) -> dict[str, Any]:
 
 
 def rule_json(limit: Limit) -> dict[str, Any]:
-    return {"id": limit.id, "shortDescription": {"text": limit.about or limit.id},
+    """A limit as a rule; a design lint's rule is described by its rule in words, as each of its
+    findings carries its own message."""
+    short = limit.check if limit.source == LINT_SOURCE else limit.about or limit.id
+    return {"id": limit.id, "shortDescription": {"text": short},
             "fullDescription": {"text": limit.check or limit.about or limit.id},
             "defaultConfiguration": {"level": LEVELS.get(limit.severity, "error")}}
 
@@ -81,8 +84,8 @@ def message_text(finding: Finding, path: str = "") -> str:
     if finding.change == "fixed":
         return text + (f"; fixed by this change (margin on the base: {row.base_margin})." if row else
                        "; fixed by this change.")
-    if row is None:
-        return text + "."
+    if row is None or finding.lint:
+        return text if text.endswith((".", "?")) else text + "."
     return text + f"; worst {worst_sentence(row)}." + (f" Reproduce: {row.reproduce}" if row.reproduce else "")
 
 

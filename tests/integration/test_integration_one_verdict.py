@@ -163,3 +163,20 @@ def test_sarif_marks_a_waived_failure_suppressed(repo, tmp_path, capsys):
     statuses = {(f["limit"], f["circuit"]): f["status"]
                 for f in json.loads((out / "report.json").read_text(encoding="utf-8"))["findings"]}
     assert statuses[("supply-under-20", "pump")] == "waived"
+
+
+def test_a_new_design_lint_fails_under_strict_everywhere_and_an_old_one_does_not(repo, tmp_path, capsys):
+    """A slip added to the pump (a resistor to a misspelt `tapp`, docs/lints.md) is a new design lint:
+    under --fail-on new --strict it alone fails the check in every output; once the base has it too,
+    it is an existing failure like the others."""
+    git(repo, "commit", "-q", "--allow-empty", "-m", "base with the warning")
+    pump = repo / "boards" / "pump" / "pump.circuit"
+    pump.write_text(pump.read_text(encoding="utf-8") + "resistor R3  from tap to tapp : 1 kohm\n", encoding="utf-8")
+    git(repo, "commit", "-q", "-am", "pump: a test resistor to a misspelt net")
+    seen = outputs(repo, tmp_path / "out", capsys, "--fail-on", "new", "--strict")
+    assert_one_verdict(seen, passed=False, headline="1 new design lint fails under --strict", failing=1)
+    assert seen["sarif_errors"] == ["lint.single-connection"]
+    git(repo, "commit", "-q", "--allow-empty", "-m", "nothing changes")
+    seen = outputs(repo, tmp_path / "out2", capsys, "--fail-on", "new", "--strict")
+    assert_one_verdict(seen, passed=True, headline="this change adds no failure; 5 existing failures remain",
+                       failing=0)
