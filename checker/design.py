@@ -138,7 +138,9 @@ class OperatingPoint:
     """The DC solution of one netlist.
 
     `strategy` is how it was reached: "linear" (one direct solve), "newton",
-    "gain stepping", "shunt stepping" or "source stepping".
+    "gain stepping", "shunt stepping" or "source stepping". `state` tells which stable
+    state of its case this is (`1 of 2`) when the case has more than one (docs/models.md,
+    "Stability and several states"); empty when it has one.
     """
 
     netlist: Netlist
@@ -146,6 +148,7 @@ class OperatingPoint:
     parts: Mapping[str, PartResult]
     iterations: int = 1
     strategy: str = "linear"
+    state: str = ""
 
     @property
     def case(self) -> str:
