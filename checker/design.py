@@ -8,7 +8,7 @@ temperatures are in kelvin.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Mapping
+from typing import Any, Mapping
 
 from checker.errors import Location
 
@@ -149,6 +149,7 @@ class OperatingPoint:
     iterations: int = 1
     strategy: str = "linear"
     state: str = ""
+    self_check: Any = field(default=None, compare=False)  # checker.solver.selfcheck.SelfCheck: the answer checked
 
     @property
     def case(self) -> str:
