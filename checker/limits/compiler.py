@@ -18,6 +18,7 @@ from checker.errors import LimitError, did_you_mean
 from checker.limits import margins
 from checker.limits.syntax import Binary, Call, Compare, InRange, Locator, Logic, Not, Num, Ref, Unary
 from checker.limits.vocabulary import FUNCTIONS, MEASURES, PRIMARY, PROPERTIES, property_type
+from checker.remedies.series import preferred_value
 from checker.units import (
     AMPERE, DIMENSIONLESS, KELVIN, VOLT, WATT, Dim, dim_div, dim_mul, dim_name, dim_pow, parse_unit,
 )
@@ -302,7 +303,11 @@ def _call(node: Call, scope: Scope) -> Typed:
         raise scope.error(f"unknown function `{node.name}`", node.pos,
                           did_you_mean(node.name, FUNCTIONS + MEASURES)
                           + (f"functions: {', '.join(FUNCTIONS + MEASURES)}",))
+    if node.name == "declared":
+        return _declared(node, scope)
     args = [_number(arg, scope, f"`{node.name}`") for arg in node.args]
+    if node.name == "preferred":
+        return _preferred(node, args, scope)
     if node.name in ("min", "max"):
         return _extreme(node, args, scope)
     if len(args) != 1:
@@ -341,6 +346,43 @@ def _sqrt(node: Call, arg: Typed, scope: Scope) -> Typed:
             raise where.error(f"`sqrt` of a negative number in case `{values.case}`", node.pos)
         return math.sqrt(number)
     return Typed(False, run, tuple(e // 2 for e in arg.dim))
+
+
+def _preferred(node: Call, args: list[Typed], scope: Scope) -> Typed:
+    """`preferred(X, TOL)`: X snapped to the nearest value of the IEC 60063 series made for tolerance TOL
+    (docs/remedies.md); X itself when it is on that series."""
+    if len(args) != 2:
+        raise scope.error("`preferred` takes a value and a tolerance: `preferred(part.value, part.tol)`", node.pos)
+    value, tol = args
+    if value.absolute:
+        raise scope.error("`preferred` of a temperature in degC means nothing", node.pos)
+    if tol.dim != DIMENSIONLESS:
+        raise scope.error(f"a tolerance is a plain fraction (`part.tol`, `5%`), not {_describe(tol)}",
+                          node.args[1].pos)
+    fx, ft = value.fn, tol.fn
+    const = None if value.const is None or tol.const is None else preferred_value(value.const, tol.const)
+    return Typed(False, lambda values: preferred_value(fx(values), ft(values)), value.dim, const=const)
+
+
+def _declared(node: Call, scope: Scope) -> Typed:
+    """`declared(X)`: X with every part at its declared value (no case override, no tolerance), a
+    constant known when the file loads; X may read part properties and numbers only."""
+    if len(node.args) != 1:
+        raise scope.error("`declared` takes one argument, such as `declared(part.value)`", node.pos)
+    if not _declared_only(node.args[0]):
+        raise scope.error("`declared` reads part properties and numbers only, not a measure or `ambient`", node.pos)
+    arg = _number(node.args[0], scope, "`declared`")
+    value = arg.fn(DeclaredValues(scope.design))
+    return Typed(False, lambda values: value, arg.dim, arg.absolute, const=value)
+
+
+def _declared_only(node) -> bool:
+    if isinstance(node, Call):
+        return node.name not in MEASURES and all(_declared_only(arg) for arg in node.args)
+    if isinstance(node, Ref):
+        return node.names != ("ambient",)
+    return all(_declared_only(child) for child in (getattr(node, "left", None), getattr(node, "right", None),
+                                                    getattr(node, "operand", None)) if child is not None)
 
 
 def _measure(node: Call, scope: Scope) -> Typed:

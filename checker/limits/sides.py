@@ -30,7 +30,7 @@ import numpy as np
 from checker.limits import margins
 from checker.limits.compiler import Scope, _compile
 from checker.limits.syntax import Binary, Call, Compare, InRange, Logic, Not, Num, Ref, Unary
-from checker.limits.vocabulary import MEASURES, PRIMARY
+from checker.limits.vocabulary import MEASURES, PRIMARY, WHOLE_FUNCTIONS
 
 MAX_SIDES = 64
 """Splitting stops here: an expression with more `abs`/`min`/`max` combinations is one side
@@ -103,7 +103,8 @@ class Side:
 
     def size(self, values) -> np.ndarray:
         """max(|value|, |bound|): what a change of this side is small against."""
-        return np.maximum(np.abs(np.asarray(self.bound.fn(values), float)), np.abs(self.value.fn(values)))
+        size = np.maximum(np.abs(np.asarray(self.bound.fn(values), float)), np.abs(self.value.fn(values)))
+        return np.broadcast_to(size, _shape(values))  # a constant on both sides (`declared`) too
 
     def scale(self, values) -> np.ndarray:
         """The relative margin's denominator: at the point where this side decides, the same as the check's."""
@@ -244,6 +245,9 @@ def _number(node, scope: Scope):
     if isinstance(node, Call) and node.name in MEASURES:
         text = f"{node.name}({', '.join(arg.text for arg in node.args)})"  # voltage(A, B) too: still net voltages
         return _leaf_of(node, scope, text, node.name in LINEAR_MEASURES)
+    if isinstance(node, Call) and node.name in WHOLE_FUNCTIONS:
+        texts = (getattr(_number(arg, scope), "text", "\u2026") for arg in node.args)
+        return _leaf_of(node, scope, f"{node.name}({', '.join(texts)})", False)
     if isinstance(node, Call):
         args = [_number(arg, scope) for arg in node.args]
         if node.name in ("min", "max"):

@@ -15,7 +15,11 @@ PROPERTIES = tuple(sorted({name for kind in _TABLE.values() for name in kind.pro
 PRIMARY = "value"  # `R1.value`: the part's primary value, in the unit its `value_unit` names
 
 MEASURES = ("voltage", "current", "power", "junction_temp")
-FUNCTIONS = ("abs", "min", "max", "sqrt")
+FUNCTIONS = ("abs", "min", "max", "sqrt", "preferred", "declared")
+# Functions a check's split into sides (checker.limits.sides) takes whole, as it takes a measure:
+# `preferred(X, TOL)` snaps X to the IEC 60063 series of tolerance TOL (checker.remedies.series), a step
+# function; `declared(X)` is X at the declared values (no case override, no tolerance): a constant.
+WHOLE_FUNCTIONS = ("preferred", "declared")
 
 
 def property_type(kind: str, name: str) -> tuple[Dim, bool] | None:
