@@ -82,6 +82,39 @@ class Outcome:
 
 
 @dataclass(frozen=True)
+class Remedy:
+    """One part change that restores a failing limit (docs/remedies.md), confirmed on the whole circuit.
+
+    `property` is "value" (the primary value), "vout", "rating", ...; `from_value` and `to_value`
+    are SI, `to_value` a value of `series` ("E24", "power ratings", "2 digits"); `root_value`
+    is where the search found the margin to cross zero, before snapping. `margin_after` (and
+    `relative_after`) is the limit's worst margin with the change, in the configured tolerance
+    analysis; `all_limits_hold` is true only when every limit of the circuit then holds (waived
+    failures aside) in every case; `breaks` names the limits that held before and fail with it.
+    """
+
+    part: str
+    property: str
+    from_value: float
+    to_value: float
+    series: str
+    margin_after: float
+    all_limits_hold: bool
+    root_value: float
+    unit: str = ""  # the unit of the values, as written ("ohm", "V", "W")
+    relative_after: float = 0.0
+    margin_unit: str = ""  # the unit of margin_after (the limit's)
+    absolute: bool = False  # margin of an absolute temperature: shown in K either way
+    limits: int = 0  # how many limits of the circuit were confirmed
+    breaks: tuple[str, ...] = ()
+
+    @property
+    def name(self) -> str:
+        """`R1` for a primary value, `U1.vout` otherwise, as reports and `solve --at` name values."""
+        return self.part if self.property == "value" else f"{self.part}.{self.property}"
+
+
+@dataclass(frozen=True)
 class Finding:
     """One limit on one circuit and one item (the part, for `each` limits), over its cases.
 
@@ -105,6 +138,8 @@ class Finding:
     base_margin: float | None = None
     drivers: tuple[tuple[str, float], ...] = ()
     fail_fraction: float | None = None
+    remedies: tuple[Remedy, ...] = ()  # failing and warning limits: part changes that fix them (docs/remedies.md)
+    remedy_note: str = ""  # why there are none, or fewer than asked: no candidate, none holds all, budget spent
 
     @property
     def worst(self) -> Outcome:
