@@ -111,6 +111,10 @@ def build_parser() -> argparse.ArgumentParser:
                             "a part's name for its primary value, PART.vout for a regulator's output voltage; "
                             "reports print the POINT of each worst case")
     solve.add_argument("--format", choices=("table", "json"), default="table")
+    solve.add_argument("--equations", action="store_true",
+                       help="print the nodal equations at the solution (linearised for nonlinear parts)")
+    solve.add_argument("--equations-out", type=Path, metavar="FILE",
+                       help="write the equations of one case as a Matrix Market file: [matrix | right-hand side]")
 
     init = commands.add_parser("init", help="write a starter configuration, example circuit, limits and CI workflow")
     init.add_argument("directory", nargs="?", default=".", type=Path)

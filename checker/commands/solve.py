@@ -1,8 +1,10 @@
-"""`nodegate solve FILE [--case NAME] [--at POINT] [--format table|json]`: print operating points."""
+"""`nodegate solve FILE [--case NAME] [--at POINT] [--format table|json] [--equations] [--equations-out FILE]`:
+print operating points, or the nodal equations they solve; a conditioning warning goes to stderr."""
 
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 from typing import Sequence
@@ -15,7 +17,12 @@ from checker.errors import DesignError, did_you_mean
 from checker.language import load_design
 from checker.repo.config import CONFIG_NAMES
 from checker.report import render_solve_json, render_solve_table
+from checker.report.solve import render_equations
+from checker.report.writer import Planned, write_set
 from checker.solver import solve_cases
+from checker.solver.assembly import assemble
+from checker.solver.equations import Linearised, linearise, matrix_market
+from checker.solver.selfcheck import conditioning_warnings
 
 Moved = tuple[tuple[Tolerance, float], ...]
 Point = tuple[tuple[str, float], ...]
@@ -93,5 +100,41 @@ def run(args: argparse.Namespace) -> int:
         netlists, at, notes = at_point(netlists, point)
     with located_at(design):
         points = solve_cases(netlists)
+    for warning in conditioning_warnings(points):
+        print(f"nodegate: warning: {warning}", file=sys.stderr)
+    if args.equations or args.equations_out is not None:
+        show_equations(design, points, args.equations_out, at, notes)
+        return 0
     show(design.name, points, args.format, at, notes)
     return 0
+
+
+def show_equations(design: Design, points: Sequence[OperatingPoint], out: Path | None, at: Point | None,
+                   notes: Sequence[str]) -> None:
+    """Each case's nodal equations; with `out`, the one selected case's as a Matrix Market file."""
+    if out is not None and len(points) != 1:
+        raise DesignError(f"--equations-out writes one case, and `{design.path}` has {len(points)}: "
+                          f"choose one with --case", notes=(f"its cases: {', '.join(design.cases)}",))
+    blocks = []
+    for point in points:
+        equations = equations_of(point)
+        written = None
+        if out is not None:
+            title = f"nodegate: circuit {design.name}, case {point.case}"
+            write_set([Planned(Path(os.path.abspath(out)).parent, Path(os.path.abspath(out)),
+                               matrix_market(equations, title), _is_matrix_market)])
+            written = str(out)
+        blocks.append(render_equations(design.name, point, equations, written))
+    head = [f"at {point_label(at)}", *(f"note: {note}" for note in notes)] if at is not None else []
+    print("\n\n".join(["\n".join(head)] * bool(head) + blocks))
+
+
+def equations_of(point: OperatingPoint) -> Linearised:
+    """The equations the point solves: its netlist assembled again, at the solution vector it was read from."""
+    system = assemble(point.netlist)
+    return linearise(system, point.parts.solution.x)
+
+
+def _is_matrix_market(head: bytes) -> bool:
+    """An existing file is replaced only when it is a Matrix Market file (an earlier export)."""
+    return head.startswith(b"%%MatrixMarket")

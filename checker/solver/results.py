@@ -9,6 +9,7 @@ import numpy as np
 
 from checker.design import OperatingPoint, Part, PartResult
 from checker.devices import Device
+from checker.solver import linear, selfcheck
 from checker.solver.assembly import System
 from checker.solver.topology import Topology
 
@@ -35,14 +36,21 @@ def branch_layout(system: System) -> tuple[bytes, ...]:
 
 
 def operating_point(system: System, x: np.ndarray, iterations: int, strategy: str) -> OperatingPoint:
-    """Every net (ground 0 V) and every part, in netlist order."""
+    """Every net (ground 0 V) and every part, in netlist order, with the solution's own check
+    (`selfcheck`: NoSolutionError instead of a point that does not balance)."""
+    x = selfcheck.solution_seen(system, x)
     x_ext = np.append(x, 0.0)
     nets = dict(zip(system.nets, [0.0] + x[:system.n_nodes].tolist()))
     groups = [_group_results(device, x_ext) for device in system.devices]
     topology = system.topology
+    factor = linear.latest(system.matrix, system.netlist, system.size)
+    checked = selfcheck.check(system, x, [g.currents for g in groups], [g.power for g in groups],
+                              selfcheck.digits_lost(factor))
+    if system.nonlinear_devices:
+        linear.forget()  # Newton-Raphson's last Jacobian: nothing else will ask for it
     parts = PartResults(system.netlist.parts, groups, topology.group_of, topology.row_of,
                         Solution(topology, branch_layout(system), x))
-    return OperatingPoint(system.netlist, nets, parts, iterations, strategy)
+    return OperatingPoint(system.netlist, nets, parts, iterations, strategy, self_check=checked)
 
 
 def warm_start(system: System, point: OperatingPoint) -> np.ndarray:
