@@ -15,7 +15,7 @@ def test_json_has_exactly_the_documented_shape():
     document = json.loads(render_solve_json("tail_light", operating_points()))
     assert set(document) == {"circuit", "cases"} and document["circuit"] == "tail_light"
     case = document["cases"][0]
-    assert set(case) == {"case", "ambient_degC", "converged", "iterations", "nets", "parts"}
+    assert set(case) == {"case", "ambient_degC", "converged", "iterations", "state", "self_check", "nets", "parts"}
     assert (case["case"], case["converged"], case["iterations"]) == ("fresh_cells", True, 7)
     # SI Brochure, 9th ed. (2019), 2.3.1: t/°C = T/K - 273.15, so 298.15 K is 25 °C.
     assert math.isclose(case["ambient_degC"], KELVIN_25C - 273.15, abs_tol=1e-9)
@@ -63,7 +63,7 @@ def test_table_columns_are_aligned():
     lines = _block(render_solve_table(operating_points()), "fresh_cells")
     nets = [line for line in lines[:6]]
     assert len({len(line) for line in nets}) == 1  # right-aligned voltages end in one column
-    parts = [line for line in lines[6:] if line.split()[0] != "into"]
+    parts = [line.split("  (flows")[0] for line in lines[6:] if line.split()[0] != "into"]  # direction in words after
     assert len({len(line) for line in parts}) == 1
     header = parts[0]
     for row in parts[1:]:
