@@ -16,6 +16,7 @@ from checker.repo.git import repo_location, revision_checkout
 from checker.report import summary_lines, write_reports
 from checker.report.annotations import render_annotations
 from checker.report.writer import stoppable
+from checker.solver.selfcheck import conditioning_warnings
 from checker.verdict import Policy, judge
 
 DEFAULT_FORMATS = ("md", "html", "json")
@@ -45,6 +46,8 @@ def _check(args: argparse.Namespace) -> int:
     lines = summary_lines(findings, verdict)
     for line in lines[:-1]:
         print(line)
+    for warning in conditioning_warnings([p for c in findings.circuits for p in c.operating_points]):
+        print(f"WARN {warning}")  # numerical health (docs/models.md, "Checking its own answers"): no verdict change
     for path in targets.values():
         print(f"report: {shown_path(path)}")
     print(lines[-1])  # the verdict, last, as every report states it

@@ -23,7 +23,7 @@ from typing import Any
 
 from checker.errors import Location
 from checker.findings import Finding, Findings, Limit, Outcome, Waiver, WaiverNote
-from checker.report.solve import case_json, finite_or_none
+from checker.report.solve import case_json, finite_or_none, worst_self_check
 from checker.report.view import make_verdict, new_failures
 from checker.verdict import Verdict, judge
 
@@ -102,6 +102,7 @@ def render_json(findings: Findings, verdict: Verdict | None = None) -> str:
         "fixed": [finding_json(f) for f in findings.fixed],
         "waiver_notes": [note_json(n) for n in findings.waiver_notes],
         "circuits": [{"name": c.name, "title": c.title, "path": c.path,
+                      "self_check": worst_self_check(c.operating_points),
                       "cases": [case_json(p) for p in c.operating_points]} for c in findings.circuits],
     }
     return json.dumps(document, indent=2, ensure_ascii=False, allow_nan=False) + "\n"

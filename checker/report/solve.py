@@ -190,3 +190,14 @@ def render_equations(circuit: str, point: OperatingPoint, equations, out: str | 
     if out:
         lines.append(f"written: {out} (Matrix Market: [matrix | right-hand side], rows and columns named in its comments)")
     return "\n".join(lines)
+
+
+def worst_self_check(points: Sequence[OperatingPoint]) -> dict[str, Any] | None:
+    """The worst of each self-check figure over a circuit's cases (the check's JSON report, per circuit):
+    the largest net imbalance (A), the largest |sum of part powers| (W) and the most digits lost."""
+    found = [p.self_check.as_json() for p in points if p.self_check is not None]
+    if not found:
+        return None
+    lost = [f["digits_lost"] for f in found if f["digits_lost"] is not None]
+    return {"kcl": max(f["kcl"] for f in found), "power": max(f["power"] for f in found),
+            "digits_lost": max(lost) if lost else None}
