@@ -21,6 +21,7 @@ from checker.analysis.worstcase import DEFAULT_VERTEX_VALUES
 from checker.findings import Analysis, Findings
 from checker.language import load_design
 from checker.limits import LimitFile, compile_limits, load_limit_file, load_pack
+from checker.remedies.search import with_remedies
 from checker.repo.config import Config
 
 Progress = Callable[[str], None]
@@ -83,9 +84,16 @@ def check_work(config: Config, designs: list[Design]) -> None:
                 ("lower `vertex_values`: cases with more toleranced values are searched from corners instead",))
 
 
-def run_check(config: Config, today: datetime.date, progress: Progress | None = None) -> Findings:
-    """Solve every circuit in every case and evaluate every limit of `config` under its tolerance analysis."""
+def run_check(config: Config, today: datetime.date, progress: Progress | None = None,
+              remedies: bool = True) -> Findings:
+    """Solve every circuit in every case and evaluate every limit of `config` under its tolerance analysis;
+    with `remedies`, then search each failing and warning limit's remedies within the default budget
+    (`checker.remedies.search`, docs/remedies.md)."""
     designs = load_designs(config)
-    limit_set = compile_limits(load_limit_files(config), designs)
+    files = load_limit_files(config)
+    limit_set = compile_limits(files, designs)
     check_work(config, designs)
-    return analyse(limit_set, designs, today, analysis_of(config), progress)
+    findings = analyse(limit_set, designs, today, analysis_of(config), progress)
+    if not remedies:
+        return findings
+    return with_remedies(findings, files, designs, today, analysis_of(config), progress)
