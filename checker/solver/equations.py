@@ -133,7 +133,8 @@ def inspect(system: System, matrix: sp.spmatrix) -> Inspection:
     row_names = [f"net {net}" for net in system.nets[1:]] + list(_branch_names(system))
     conductance = sp.csr_matrix(matrix)[:n, :n]
     diagonal = conductance.diagonal()
-    low = np.flatnonzero(~(diagonal > 0))
+    touched = np.diff(conductance.indptr) > 0  # a net held only by voltage-defined parts has an empty row
+    low = np.flatnonzero(~(diagonal > 0) & touched)
     if low.size:
         k = int(low[0])
         return Inspection(applies, False, f"the diagonal entry of {row_names[k]} is {diagonal[k]:.4g} S, not above zero")
@@ -169,5 +170,5 @@ def matrix_market(equations: Linearised, title: str) -> str:
              f"column {len(equations.unknowns) + 1}: the right-hand side (A in net rows, V in branch rows)",
              *(f"row {k + 1}: {row}" for k, row in enumerate(equations.rows))]
     buffer = io.BytesIO()
-    scipy.io.mmwrite(buffer, augmented, comment="\n".join(lines), precision=17)
+    scipy.io.mmwrite(buffer, augmented, comment="\n".join(" " + line for line in lines), precision=17)
     return buffer.getvalue().decode("utf-8")

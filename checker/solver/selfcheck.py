@@ -138,8 +138,8 @@ def check(system, x: np.ndarray, pin_currents: Sequence[np.ndarray], power: Sequ
     tolerance[n] += tolerance[:n].sum()
     bad = np.abs(sums) > tolerance
     bad |= ~np.isfinite(sums)
-    if np.any(bad):
-        row = int(np.flatnonzero(bad)[0])
+    if np.any(bad):  # the net furthest out of balance against its own tolerance
+        row = int(np.argmax(np.where(bad, _ratio(sums, tolerance), -1.0)))
         raise _unbalanced_net(system, row, float(sums[row]), float(tolerance[row]))
 
     branch = _branch_residual(system, x, x_ext, linear_terms)
@@ -152,6 +152,14 @@ def check(system, x: np.ndarray, pin_currents: Sequence[np.ndarray], power: Sequ
     worst = int(np.argmax(np.abs(sums))) if sums.size else n
     return SelfCheck(float(np.abs(sums[worst])) if sums.size else 0.0,
                      system.nets[0] if worst == n else system.nets[worst + 1], abs(total), branch, digits_lost)
+
+
+def _ratio(residual: np.ndarray, tolerance: np.ndarray) -> np.ndarray:
+    """|residual| / tolerance without a floating-point warning: infinite where either is not finite."""
+    ratio = np.full(residual.shape, np.inf)
+    np.divide(np.abs(residual), np.maximum(tolerance, np.finfo(float).tiny), out=ratio,
+              where=np.isfinite(residual) & np.isfinite(tolerance))
+    return ratio
 
 
 def where_of(device, n: int) -> np.ndarray:
@@ -177,7 +185,7 @@ def _branch_residual(system, x: np.ndarray, x_ext: np.ndarray, linear_terms: np.
     tolerance = KCL_RELATIVE * terms + floor
     bad = ~(np.abs(residual) <= tolerance)
     if np.any(bad):
-        row = n + int(np.flatnonzero(bad)[0])
+        row = n + int(np.argmax(np.where(bad, _ratio(residual, tolerance), -1.0)))
         part = branch_owner(system, row)
         raise _failed(system, f"the equation of {part} is off by {float(residual[row - n]):.3g} V "
                               f"(tolerance {float(tolerance[row - n]):.3g} V)")
