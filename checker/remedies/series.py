@@ -57,7 +57,7 @@ UNTOLERANCED = "E24"  # a resistor or capacitor that declares no `tol`: the seri
 # (manufacturers' practice, e.g. chip sizes 0201 to 2512; not a standard table).
 POWER_RATINGS = (0.05, 0.0625, 0.1, 0.125, 0.25, 0.5, 1.0, 2.0, 3.0, 5.0)
 RATINGS = "power ratings"
-ROUND = "2 digits"  # everything else: round numbers, two significant figures
+ROUND = "round"  # everything else: round numbers, two significant figures
 ROUND_DIGITS = tuple(range(10, 100))
 SAME = 1e-9  # values closer than this share are one value: float rounding of a decimal written value
 

@@ -4,7 +4,8 @@ Shape (marker "schema": "nodegate-findings/1"): `analysis` (the tolerance mode, 
 samples and seed for Monte Carlo), `verdict` (the one verdict, `checker.verdict`: `passed`,
 `exit_code`, `headline`, `reasons`, the policy, and counts), `limits` (metadata of each limit
 once), `findings` (each with its outcomes and worst case, `drivers`: parts with the
-margin change over their tolerance band, and `fail_fraction` for Monte Carlo),
+margin change over their tolerance band, `fail_fraction` for Monte Carlo, and `remedies`:
+`part`, `property`, `from`, `to`, `series`, `margin_after`, `all_limits_hold`, docs/remedies.md),
 `fixed` (with --base), `waiver_notes`, and `circuits` with the operating point of every case
 in the shape of `solve --format json`. Temperatures are kelvin, flagged `absolute`;
 NaN and infinities become null so that any JSON reader accepts the file.
@@ -22,7 +23,7 @@ import json
 from typing import Any
 
 from checker.errors import Location
-from checker.findings import Finding, Findings, Limit, Outcome, Waiver, WaiverNote
+from checker.findings import Finding, Findings, Limit, Outcome, Remedy, Waiver, WaiverNote
 from checker.report.solve import case_json, finite_or_none, worst_self_check
 from checker.report.view import make_verdict, new_failures
 from checker.verdict import Verdict, judge
@@ -70,7 +71,17 @@ def finding_json(finding: Finding) -> dict[str, Any]:
             "waiver": waiver_json(finding.waiver), "item_location": location_json(finding.item_location),
             "drivers": [{"part": part, "margin_change": finite_or_none(change)} for part, change in finding.drivers],
             "fail_fraction": finding.fail_fraction,
+            "remedies": [remedy_json(r) for r in finding.remedies], "remedy_note": finding.remedy_note or None,
             "outcomes": [outcome_json(o) for o in finding.outcomes]}
+
+
+def remedy_json(remedy: Remedy) -> dict[str, Any]:
+    """One remedy (docs/remedies.md): values in SI (`unit` as written), `margin_after` in the limit's unit."""
+    return {"part": remedy.part, "property": remedy.property, "from": remedy.from_value, "to": remedy.to_value,
+            "unit": remedy.unit, "series": remedy.series, "root": finite_or_none(remedy.root_value),
+            "margin_after": finite_or_none(remedy.margin_after),
+            "relative_after": finite_or_none(remedy.relative_after),
+            "all_limits_hold": remedy.all_limits_hold, "limits": remedy.limits, "breaks": list(remedy.breaks)}
 
 
 def note_json(note: WaiverNote) -> dict[str, Any]:

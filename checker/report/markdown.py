@@ -120,6 +120,9 @@ def _point_entry(row: Row) -> str:
         lines.append(f"No operating point: {escape(row.error)}")
     if row.reproduce:
         lines.append(f"Reproduce: {code_span(row.reproduce)}")
+    lines += [f"Remedy: {escape(text)}" for text in row.remedies]
+    if row.remedy_note:
+        lines.append(f"Remedies: {escape(row.remedy_note)}")
     text = "\\\n".join(lines) + "\n"
     if row.point:
         text += (f"\n<details><summary>Full point: {plural(len(row.point), 'value')}</summary>\n\n"
@@ -129,7 +132,7 @@ def _point_entry(row: Row) -> str:
 
 def _points_block(rows: tuple[Row, ...]) -> list[_Block]:
     """The entries of the rows that have a tolerance point or no operating point (none: no block)."""
-    entries = [_point_entry(r) for r in rows if r.point or r.error]
+    entries = [_point_entry(r) for r in rows if r.point or r.error or r.remedies or r.remedy_note]
     return [_Block([], entries)] if entries else []
 
 

@@ -27,6 +27,11 @@ def _finding_line(word: str, row: Row) -> str:
     return line + (f" [{row.change}]" if row.change else "")
 
 
+def _remedy_lines(row: Row) -> list[str]:
+    """`  remedy: R_LED 150 Ω → 180 Ω (E12): …` under a failing or warning limit (docs/remedies.md)."""
+    return [f"  remedy: {text}" for text in row.remedies] + ([f"  remedies: {row.remedy_note}"] if row.remedy_note else [])
+
+
 def _note_line(note: NoteRow) -> str:
     narrowed = "".join(f" [{v}]" for v in (note.part, note.case) if v)
     where = f" at {note.where}" if note.where else ""
@@ -42,9 +47,9 @@ def _one_line(text: str) -> str:
 def summary_lines(findings: Findings, verdict: Verdict | None = None) -> list[str]:
     """One line per failing limit, then warnings, design lints and waiver problems, then the verdict."""
     view = build_view(findings, verdict)
-    lines = [_finding_line("FAIL", row) for row in view.failures]
+    lines = [line for row in view.failures for line in [_finding_line("FAIL", row)] + _remedy_lines(row)]
     lines += [_note_line(note) for note in view.expired]
-    lines += [_finding_line("WARN", row) for row in view.warnings]
+    lines += [line for row in view.warnings for line in [_finding_line("WARN", row)] + _remedy_lines(row)]
     lines += [_finding_line("LINT", row) for row in view.lints]
     lines += [_note_line(note) for note in view.unused]
     lines.append(view.verdict.text + "." + (f" {view.verdict.base}" if view.verdict.base else ""))

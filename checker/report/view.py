@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 from checker.analysis.points import reproduce_command
 from checker.analysis.tolerances import named_deviation
-from checker.findings import Analysis, Finding, Findings, Outcome, Waiver, WaiverNote
+from checker.findings import Analysis, Finding, Findings, Outcome, Remedy, Waiver, WaiverNote
 from checker.units import format_percent, format_temperature, format_value
 from checker.verdict import Verdict, judge
 
@@ -194,6 +194,8 @@ class Row:
     point: tuple[str, ...] = ()  # the full point of the worst outcome, `R1 +5 %` each
     error: str = ""  # the solver's message when the worst outcome has no operating point
     reproduce: str = ""  # the command that solves a failing worst outcome's point
+    remedies: tuple[str, ...] = ()  # each remedy in words (`remedy_text`), best first
+    remedy_note: str = ""  # why there are no remedies, or only partial ones
 
     @property
     def lint(self) -> bool:
@@ -312,7 +314,29 @@ def make_row(finding: Finding, path: str = "") -> Row:
         change=change, base_margin=base_margin, margin_change=margin_change,
         waiver=waiver_text(finding.waiver), drivers=drivers_text(finding),
         fails_in=format_fraction(finding.fail_fraction), **_point_columns(worst, path),
+        remedies=tuple(remedy_text(remedy) for remedy in finding.remedies), remedy_note=finding.remedy_note,
     )
+
+
+ARROW = "\u2192"
+
+
+def remedy_text(remedy: Remedy) -> str:
+    """`R_LED 150 Ω → 180 Ω (E12): margin +2.10 mA (+21.0 %); all 37 limits hold` (docs/remedies.md)."""
+    change = (f"{remedy.name} {format_number(remedy.from_value, remedy.unit)} {ARROW} "
+              f"{format_number(remedy.to_value, remedy.unit)} ({remedy.series})")
+    if math.isfinite(remedy.margin_after):
+        margin = (f"margin {format_margin(remedy.margin_after, remedy.margin_unit, remedy.absolute, signed=True)}"
+                  f" ({format_relative(remedy.relative_after)})")
+    else:
+        margin = "the limit no longer applies"
+    if remedy.all_limits_hold:
+        held = f"all {remedy.limits} limits hold" if remedy.limits > 1 else "the only limit holds"
+    elif remedy.breaks:
+        held = "breaks " + ", ".join(remedy.breaks)
+    else:
+        held = "limits that failed before still fail"
+    return f"{change}: {margin}; {held}"
 
 
 def make_note(note: WaiverNote) -> NoteRow:
