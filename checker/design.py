@@ -64,7 +64,8 @@ class Part:
 
 @dataclass(frozen=True)
 class Netlist:
-    """One case of one circuit: the fitted parts with the case's overrides applied."""
+    """One case of one circuit: the fitted parts with the case's overrides applied. `starts`
+    holds (net, volts) from `NET starts at VALUE`: the case keeps the stable state nearest them."""
 
     circuit: str
     case: str
@@ -72,6 +73,7 @@ class Netlist:
     ground: str
     parts: tuple[Part, ...]
     case_location: Location | None = field(default=None, compare=False)
+    starts: tuple[tuple[str, float], ...] = ()
 
     @property
     def nets(self) -> tuple[str, ...]:

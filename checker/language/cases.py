@@ -2,7 +2,8 @@
 
 `NAME = VALUE` sets a part's primary value or flag word, `NAME.prop = VALUE` a
 property (hierarchical: `DIV.RA.tol`), `NAME = absent` removes a part (or every
-part of a block instance), `ambient = T` the temperature (default 25 degC).
+part of a block instance), `ambient = T` the temperature (default 25 degC), and
+`NET starts at V` picks, among several stable states, the one nearest that voltage.
 """
 
 from __future__ import annotations
@@ -15,7 +16,7 @@ from checker.kinds import KINDS, check_range
 from checker.language.expressions import Scope, dim_text, evaluate
 from checker.language.parts import check_complete, primary_value, property_value
 from checker.language.syntax import Case, Override, declared
-from checker.units import KELVIN, ZERO_CELSIUS
+from checker.units import KELVIN, VOLT, ZERO_CELSIUS
 
 DEFAULT_AMBIENT = ZERO_CELSIUS + 25.0  # K: the reference temperature of docs/models.md
 MAX_CASES = 1000
@@ -50,14 +51,32 @@ class _Case:
 
     def apply(self, case: Case) -> Netlist:
         done: set[str] = set()
+        starts: list[Override] = []
         for override in case.overrides:
             key = ".".join(n.text for n in override.target) or "ambient"
+            key += " starts" if override.start else ""
             if key in done:
                 raise DesignError(f"`{key}` is set twice in case `{case.name.text}`", override.location)
             done.add(key)
-            self.override(override)
+            if override.start:
+                starts.append(override)
+            else:
+                self.override(override)
         parts = tuple(p for p in self.parts.values() if p is not None)
-        return Netlist(self.circuit, case.name.text, self.ambient, self.ground, parts, case.name.location)
+        return Netlist(self.circuit, case.name.text, self.ambient, self.ground, parts, case.name.location,
+                       tuple(self.start(override, parts) for override in starts))
+
+    def start(self, override: Override, parts: tuple[Part, ...]) -> tuple[str, float]:
+        """(net, volts) of `NET starts at VALUE`: a net of this case, and a voltage."""
+        name = override.target[0]
+        nets = {net for part in parts for net in part.nets} - {self.ground}
+        if len(override.target) > 1 or name.text not in nets:
+            raise DesignError(f"no net `{'.'.join(n.text for n in override.target)}` in this case to start at a "
+                              "voltage", name.location, did_you_mean(name.text, sorted(nets)))
+        value = evaluate(override.value, self.scope)
+        if value.dim != VOLT or value.absolute:
+            raise UnitError(f"a net starts at a voltage; got {dim_text(value)}", override.value.location)
+        return name.text, value.value
 
     def override(self, override: Override) -> None:
         if not override.target:

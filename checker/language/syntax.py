@@ -96,13 +96,15 @@ class Block:
 
 @dataclass(frozen=True)
 class Override:
-    """One item of a case: `target` is the dotted path (empty for `ambient`)."""
+    """One item of a case: `target` is the dotted path (empty for `ambient`); `start` marks
+    `NET starts at VALUE`, which picks the stable state nearest that voltage."""
 
     target: tuple[Name, ...]
     value: Expr | None
     at: Expr | None
     absent: bool
     location: Location
+    start: bool = False
 
 
 @dataclass(frozen=True)
@@ -116,7 +118,7 @@ Statement = Circuit | Ground | Let | Use | PartStatement | Block | Case
 
 # Reserved words (docs/language.md, "Names"): these never name a let, part, net, port, block or case.
 RESERVED = frozenset(KINDS) | {"circuit", "ground", "let", "use", "block", "case",
-                               "from", "to", "absent", "ambient"}
+                               "from", "to", "absent", "ambient", "starts"}
 
 
 def declared(name: Name, what: str) -> str:
@@ -210,5 +212,7 @@ class _Builder:
         target = tuple(self.name(t) for t in tree.children[0].children)
         if tree.data == "set_absent":
             return Override(target, None, None, True, location)
+        if tree.data == "set_start":
+            return Override(target, self.expr(tree.children[1]), None, False, location, start=True)
         value, *at = tree.children[1:]
         return Override(target, self.expr(value), self.expr(at[0]) if at else None, False, location)

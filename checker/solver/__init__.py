@@ -1,6 +1,8 @@
 """DC operating points by modified nodal analysis.
 
-`solve` handles one netlist; `solve_cases` handles many and shares work between them:
+`solve` handles one netlist; `solve_cases` handles many and shares work between them;
+`solve_states` gives every stable operating point of each (`states`, `stability`).
+`solve_cases` shares:
 - netlists that differ only in source values (same parts, part values and ambient;
   see `sharing`) share one assembled system: one set of devices, one diagnosis and,
   when linear, one sparse LU factorisation solved for all their right-hand sides;
@@ -19,6 +21,7 @@ from __future__ import annotations
 
 import warnings
 from contextlib import contextmanager
+from dataclasses import dataclass, replace
 from typing import Iterator, Sequence
 
 import numpy as np
@@ -31,7 +34,9 @@ from checker.solver.linear import Factor
 from checker.solver.newton import check_models, newton
 from checker.solver.results import operating_point, warm_start
 from checker.solver.sharing import Group, signature
+from checker.solver.states import Point, Search, search, seeded
 from checker.solver.topology import Cache
+from checker.units import format_value
 
 
 def solve(netlist: Netlist, cache: Cache | None = None) -> OperatingPoint:
@@ -74,6 +79,93 @@ def solve_cases(netlists: Sequence[Netlist], cache: Cache | None = None,
                 with _watched(netlists[position]):
                     points[position] = operating_point(systems[position], solutions[:, column], 1, "linear")
     return points  # type: ignore[return-value]
+
+
+@dataclass(frozen=True)
+class CaseStates:
+    """The stable operating points of one case (labelled `1 of 2`, ... when there are several), how
+    many distinct points the search found, and why each unstable one was rejected."""
+
+    points: tuple[OperatingPoint, ...]
+    found: int = 1
+    rejected: tuple[str, ...] = ()
+
+
+def solve_states(netlists: Sequence[Netlist], cache: Cache | None = None) -> list[CaseStates]:
+    """Every stable operating point of each netlist (docs/models.md, "Stability and several states").
+
+    Linear circuits have one point, always stable. A nonlinear one is solved as `solve_cases` does,
+    then searched for more points (`states.search`), each judged stable or not (`stability`); a
+    case's `starts` keep the stable state nearest them. NoSolutionError for a case whose points
+    are all unstable, naming the parts of the growing mode.
+    """
+    cache = Cache() if cache is None else cache
+    result = []
+    for netlist, point in zip(netlists, solve_cases(netlists, cache)):
+        if point.strategy == "linear":
+            result.append(CaseStates((point,)))
+            continue
+        system = assemble(netlist, cache.topology(netlist))
+        x = warm_start(system, point)
+        seeds = [seeded(system, x, dict(netlist.starts))] if netlist.starts else []
+        with _watched(netlist):
+            found = search(system, x, seeds)
+        result.append(_case_states(system, found, point))
+    return result
+
+
+def _case_states(system: System, found: Search, first: OperatingPoint) -> CaseStates:
+    netlist = system.netlist
+    stable = sorted(found.stable, key=lambda p: tuple(-np.round(p.x[:system.n_nodes], 6)))
+    rejected = tuple(_rejection(system, p) for p in found.points if not p.stability.stable)
+    if not stable:
+        raise _no_stable_point(system, found)
+    if netlist.starts:
+        stable = [min(stable, key=lambda p: _distance(system, p.x, netlist.starts))]
+    points = []
+    for number, state in enumerate(stable, 1):
+        check_models(system, state.x)
+        label = f"{number} of {len(stable)}" if len(stable) > 1 else ""
+        with _watched(netlist):
+            solved = operating_point(system, state.x, first.iterations, first.strategy)
+        points.append(replace(solved, state=label))
+    return CaseStates(tuple(points), len(found.points), rejected)
+
+
+def _distance(system: System, x: np.ndarray, starts: Sequence[tuple[str, float]]) -> float:
+    index = {net: k for k, net in enumerate(system.nets[1:])}
+    return sum((x[index[net]] - volts) ** 2 for net, volts in starts)
+
+
+def _rejection(system: System, point: Point) -> str:
+    """`an unstable point (q 1.58 V, qn 1.58 V): WHY`, naming the nets that move most along its growing mode."""
+    nets = _moving_nets(system, point)
+    shown = ", ".join(f"{net} {format_value(point.x[k], 'V')}" for net, k in nets)
+    return f"an unstable operating point ({shown}): {point.stability.reason}"
+
+
+def _moving_nets(system: System, point: Point, most: int = 4) -> list[tuple[str, int]]:
+    """The nets that move most along the point's growing mode (all nets when it is unknown), as (net, index)."""
+    nodes = system.n_nodes
+    direction = point.stability.direction
+    weights = np.ones(nodes) if direction is None else np.abs(direction[:nodes])
+    order = [int(k) for k in np.argsort(-weights, kind="stable")[:most] if weights[k] > 0]
+    return [(system.nets[k + 1], k) for k in order]
+
+
+def _no_stable_point(system: System, found: Search) -> NoSolutionError:
+    """A case whose every operating point is unstable: the board oscillates or latches up in no state
+    this DC model can show; the parts on the nets of the growing mode are named."""
+    netlist = system.netlist
+    nets = {net for point in found.points for net, _ in _moving_nets(system, point)}
+    parts = [part.name for part in netlist.parts if set(part.nets) & nets]
+    named = ", ".join(parts[:8]) + (f" and {len(parts) - 8} more" if len(parts) > 8 else "")
+    count = len(found.points)
+    message = (f"circuit `{netlist.circuit}` has no stable operating point in case `{netlist.case}`: "
+               f"{'the one' if count == 1 else f'each of the {count}'} operating point{'s' if count > 1 else ''} "
+               "found is unstable, so the board would oscillate or run away rather than settle")
+    notes = (f"the parts involved: {named}",) + tuple(_rejection(system, p) for p in found.points[:3])
+    return NoSolutionError(message, netlist.case_location, notes)
 
 
 @contextmanager
@@ -128,4 +220,4 @@ def _grouped(netlists: Sequence[Netlist], cache: Cache) -> tuple[list[Group], li
     return groups, systems
 
 
-__all__ = ["Cache", "solve", "solve_cases"]
+__all__ = ["CaseStates", "Cache", "solve", "solve_cases", "solve_states"]

@@ -114,11 +114,13 @@ class Equations:
         jacobian = sp.csc_matrix((data, self.pattern.indices, self.pattern.indptr), shape=(self.size, self.size))
         return residual, jacobian, row_scale
 
-    def limit(self, x_new: np.ndarray, x_old: np.ndarray) -> np.ndarray:
-        """The step's end after every device's junction-voltage limiting."""
+    def limit(self, x_new: np.ndarray, x_old: np.ndarray, amplifiers: bool = True) -> np.ndarray:
+        """The step's end after every device's limiting; without `amplifiers`, the junctions' only
+        (a pseudo-transient step is short enough for an op-amp output, `checker.solver.states`)."""
         new, old = np.append(x_new, 0.0), np.append(x_old, 0.0)
         for device in self.devices:
-            new = device.limit(new, old)
+            if amplifiers or device.kind != "opamp":
+                new = device.limit(new, old)
         return new[:-1]
 
     def tolerances(self) -> tuple[np.ndarray, np.ndarray]:
@@ -241,7 +243,7 @@ def gain_stepping(equations: Equations) -> Run:
     def settings(position: float) -> tuple[float, float, float, bool]:
         last = position >= decades
         return 0.0, 1.0, math.inf if last else 10.0 ** (GAIN_START + position), last
-    return _walk(equations, run, 1.0, settings)
+    return walk(equations, run, 1.0, settings)
 
 
 def shunt_stepping(equations: Equations, start: np.ndarray) -> Run:
@@ -254,16 +256,16 @@ def shunt_stepping(equations: Equations, start: np.ndarray) -> Run:
     def settings(decades: float) -> tuple[float, float, float, bool]:
         exponent = SHUNT_START - decades
         return (0.0, 1.0, math.inf, True) if exponent < SHUNT_END else (10.0 ** exponent, 1.0, math.inf, False)
-    return _walk(equations, run, 1.0, settings)
+    return walk(equations, run, 1.0, settings)
 
 
 def source_stepping(equations: Equations) -> Run:
     """Raise every source and device setpoint from zero, where 0 V everywhere is the solution, to full."""
-    return _walk(equations, Run(np.zeros(equations.size), 0, True), 0.1,
+    return walk(equations, Run(np.zeros(equations.size), 0, True), 0.1,
                  lambda scale: (0.0, min(scale, 1.0), math.inf, scale >= 1.0))
 
 
-def _walk(equations: Equations, run: Run, step: float, settings) -> Run:
+def walk(equations: Equations, run: Run, step: float, settings) -> Run:
     """Move a continuation parameter from 0 in steps; `settings(position)` gives (shunt, source
     scale, gain cap, whether this is the last position). A converged step is kept and the next one made
     half as long again; a failed one is retried a quarter as long, down to MIN_STEP."""
