@@ -100,6 +100,8 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("--strict", action="store_true", help="warnings and unused waivers fail too")
     check.add_argument("--as-of", type=_date, metavar="YYYY-MM-DD",
                        help="judge waiver expiry as of this date (default: today), to reproduce an old run")
+    check.add_argument("--no-remedies", action="store_true",
+                       help="do not search part changes that fix failing and warning limits (docs/remedies.md)")
     check.add_argument("--timeout", type=_seconds, default=DEFAULT_TIMEOUT, metavar="SECONDS",
                        help=f"stop with exit code 2 when the check takes longer (default: {DEFAULT_TIMEOUT:g})")
 
@@ -125,6 +127,8 @@ def build_parser() -> argparse.ArgumentParser:
                          help="a folder of the hardware repository (default: .), as for check")
     explain.add_argument("--config", type=Path,
                          help="the configuration file (default: the nearest nodegate.yaml in DIR or above)")
+    explain.add_argument("--no-remedies", action="store_true",
+                         help="do not search part changes that fix the limit where it fails")
 
     fmt = commands.add_parser("fmt", help="rewrite .circuit files in the canonical layout")
     fmt.add_argument("files", nargs="+", type=Path, metavar="FILE")

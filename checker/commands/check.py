@@ -33,7 +33,7 @@ def run(args: argparse.Namespace) -> int:
 def _check(args: argparse.Namespace) -> int:
     config = load_config(find_config(Path(args.directory), args.config))
     today = args.as_of or datetime.date.today()
-    findings = run_check(config, today, _progress())
+    findings = run_check(config, today, _progress(), remedies=not args.no_remedies)
     if args.base:
         findings = compare(findings, _base_findings(config, args.base, today), args.base)
     root = _source_root(config)
@@ -73,7 +73,7 @@ def _base_findings(config: Config, ref: str, today: datetime.date) -> Findings |
             print(f"nodegate: `{ref}` has no {config.path.name}; every failure counts as new", file=sys.stderr)
             return None
         try:
-            return run_check(load_config(base_config), today)
+            return run_check(load_config(base_config), today, remedies=False)  # only margins are compared
         except NodegateError as error:
             print(f"nodegate: the base revision `{ref}` cannot be checked; every failure counts as new:\n"
                   f"{render(error)}", file=sys.stderr)

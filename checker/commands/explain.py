@@ -28,6 +28,7 @@ from checker.limits import LimitFile, LimitSet, compile_limits
 from checker.pipeline import analysis_of, load_designs, load_limit_files
 from checker.repo.config import find_config, load_config
 from checker.solver import Cache, solve
+from checker.remedies.explain import explained_remedies, remedy_lines
 from checker.report.view import (NO_TEXT, STATUS_WORDS, analysis_sentence, case_label, format_fraction,
                                  format_margin, format_pair, format_relative, waiver_text)
 
@@ -44,6 +45,8 @@ def run(args: argparse.Namespace) -> int:
     mine = LimitSet(tuple(c for c in compiled.limits if c.limit.id == limit.id), compiled.waivers)
     used = [d for d in designs if any(c.circuit == d.name for c in mine.limits)]
     findings = analyse(mine, used, datetime.date.today(), analysis_of(config))
+    if not getattr(args, "no_remedies", False):
+        findings = explained_remedies(findings, files, designs, datetime.date.today(), analysis_of(config))
     print("\n".join(explain_lines(limit, findings, used, mine)))
     return 0
 
@@ -136,7 +139,7 @@ def finding_lines(finding: Finding, design: Design, limit_set: LimitSet) -> list
     target, swing, plain = side_swing(finding, design, limit_set)
     netlist = design.netlist(finding.worst.case)
     bands = {t.name: t.fraction for t in (primary_values(netlist, PLAIN_BAND) if plain else toleranced(netlist))}
-    return lines + driver_lines(finding, target, swing, bands, plain)
+    return lines + driver_lines(finding, target, swing, bands, plain) + remedy_lines(finding)
 
 
 def explain_lines(limit: Limit, findings: Findings, designs: list[Design], limit_set: LimitSet) -> list[str]:

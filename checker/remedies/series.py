@@ -146,3 +146,12 @@ def preferred_value(x, tol):
     if isinstance(x, np.ndarray) or isinstance(tol, np.ndarray):
         return _PREFERRED_ARRAY(x, tol)
     return _preferred_scalar(x, tol)
+
+
+def series_words(series: str) -> str:
+    """What a value of `series` is, in words: `E24 value`, `common power rating`, `round value ...`."""
+    if series == RATINGS:
+        return "common power rating"
+    if series == ROUND:
+        return "round value (two significant figures)"
+    return f"{series} value"
