@@ -409,7 +409,9 @@ def remedies_of(context: Context, finding: Finding, before: Sequence[Finding], b
     partial.sort(key=lambda r: (not r.fixes, len(r.remedy.breaks)))
     chosen = holding or partial[:MAX_REMEDIES]
     notes = []
-    if chosen and not holding:
+    if chosen and not holding and all(r.fixes and not r.remedy.breaks for r in chosen):
+        notes.append("each fixes this limit and breaks no other; limits that failed before still fail")
+    elif chosen and not holding:
         notes.append("no single change keeps every limit holding; the best partial ones follow")
     if cut:
         notes.append("remedy search stopped early: its budget of confirmations is spent")
