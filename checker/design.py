@@ -140,7 +140,8 @@ class OperatingPoint:
     """The DC solution of one netlist.
 
     `strategy` is how it was reached: "linear" (one direct solve), "newton",
-    "gain stepping", "shunt stepping" or "source stepping". `state` tells which stable
+    "gain stepping", "shunt stepping", "source stepping", or "state search" for a further
+    stable state found by searching (`checker.solver.states`). `state` tells which stable
     state of its case this is (`1 of 2`) when the case has more than one (docs/models.md,
     "Stability and several states"); empty when it has one.
     """

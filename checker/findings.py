@@ -61,7 +61,9 @@ class Outcome:
     "corner-search" or "interior", docs/analysis.md), `proved` whether that method
     proves it is the lowest margin over the whole tolerance box, and `point` is the
     full point: every toleranced value of the case (`R1`, `U1.vout`) with its
-    deviation as a fraction, in netlist order. `error` is set when the circuit has no
+    deviation as a fraction, in netlist order. `state` names the stable state of the
+    case the outcome was found in, when the case has several (docs/models.md, "Several
+    states"). `error` is set when the circuit has no
     operating point at that corner or sample: the solver's message; the outcome then
     fails with value and bound NaN and margin −inf.
     """
@@ -79,6 +81,7 @@ class Outcome:
     proved: bool = False  # worst-case only: the method proves this is the lowest margin
     point: tuple[tuple[str, float], ...] = ()  # every toleranced value and its deviation
     error: str = ""  # no operating point here: why (the outcome fails)
+    state: str = ""  # which stable state of its case (`1 of 2`) when the case has several
 
 
 @dataclass(frozen=True)

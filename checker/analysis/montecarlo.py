@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import math
 import zlib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Callable, Sequence
 
 import numpy as np
@@ -32,13 +32,13 @@ PROGRESS_STEPS = 10  # report progress every tenth of the samples
 
 @dataclass
 class Tally:
-    """Per target: the worst outcome seen in each case, and in how many samples it failed."""
+    """Per target: the worst outcome seen in each case (and stable state), and in how many samples it failed."""
 
-    worst: dict[Key, dict[str, Outcome]] = field(default_factory=dict)
+    worst: dict[Key, dict[tuple[str, str], Outcome]] = field(default_factory=dict)
     failed: dict[Key, int] = field(default_factory=dict)
 
-    def add(self, sample: dict[str, dict[Key, Outcome]]) -> None:
-        """One sample's outcomes, case -> target -> outcome."""
+    def add(self, sample: dict[tuple[str, str], dict[Key, Outcome]]) -> None:
+        """One sample's outcomes, (case, state) -> target -> outcome."""
         failing = set()
         for case, outcomes in sample.items():
             for key, outcome in outcomes.items():
@@ -74,38 +74,43 @@ def monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Seque
     A circuit without toleranced parts has one board only: its nominal one (every
     sample would be the same), so it is evaluated once and counted as one sample.
     """
-    netlists = design.netlists
+    netlists = [point.netlist for point in points]  # a case with several stable states once per state
     active = {n.case: [t for t in targets if t.limit.applies_to(n.case)] for n in netlists}
     tally = Tally()
     names = part_names(design)
     if not names:
-        tally.add({p.case: outcomes_at(active[p.case], p) for p in points})
+        tally.add({state_key(p): outcomes_at(active[p.case], p) for p in points})
         return tally, 1
     tolerances = [toleranced(netlist) for netlist in netlists]
     rng = generator(seed, design.name)
     step = max(samples // PROGRESS_STEPS, 1)
     cache = Cache()  # every sample has the nominal topologies: number nets and find patterns once
-    nominal = {p.case: outcomes_at(active[p.case], p) for p in points}
+    nominal = {state_key(p): outcomes_at(active[p.case], p) for p in points}
     for sample in range(1, samples + 1):
         draw = dict(zip(names, rng.uniform(-1.0, 1.0, len(names))))
         corner = f"sample {sample}"
         solved = solve_each(_board(netlists, tolerances, draw), cache, points)
-        tally.add({netlist.case: (outcomes_at(active[netlist.case], found, corner) if not isinstance(found, str)
-                                  else unsolved(nominal[netlist.case], found, corner))
-                   for netlist, found in zip(netlists, solved)})
+        tally.add({state_key(point): (outcomes_at(active[point.case], replace(found, state=point.state), corner)
+                                      if not isinstance(found, str) else unsolved(nominal[state_key(point)], found, corner))
+                   for point, found in zip(points, solved)})
         if sample % step == 0 or sample == samples:
             report(f"{design.name}: {sample} of {samples} samples")
     return tally, samples
+
+
+def state_key(point: OperatingPoint) -> tuple[str, str]:
+    """A case and its stable state: where a Monte Carlo tally keeps its worst outcomes."""
+    return point.case, point.state
 
 
 def unsolved(nominal: dict[Key, Outcome], message: str, corner: str) -> dict[Key, Outcome]:
     """Every limit of a case fails where the circuit has no operating point: value and bound unknown,
     margin −inf, the solver's message kept (docs/analysis.md: a verdict never passes what was not solved)."""
     return {key: Outcome(o.case, math.nan, math.nan, -math.inf, -math.inf, o.unit, o.absolute, holds=False,
-                         corner=corner, error=message) for key, o in nominal.items()}
+                         corner=corner, error=message, state=o.state) for key, o in nominal.items()}
 
 
-def outcomes_in_order(tally: Tally, key: Key, cases: Sequence[str]) -> list[Outcome]:
-    """The worst outcome per case in the design's case order."""
+def outcomes_in_order(tally: Tally, key: Key, order: Sequence[tuple[str, str]]) -> list[Outcome]:
+    """The worst outcome per case (and stable state) in the order given (`state_key` of each point)."""
     seen = tally.worst.get(key, {})
-    return [seen[case] for case in cases if case in seen]
+    return [seen[case] for case in order if case in seen]

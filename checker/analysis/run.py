@@ -4,7 +4,8 @@
 nominal, worst-case and Monte Carlo. It returns the same
 Findings the reports render, with each outcome's corner, each finding's drivers and,
 for Monte Carlo, its failure fraction. Operating points kept for the reports are
-always the nominal ones.
+always the nominal ones: every stable state of each case (`checker.solver.solve_states`),
+and every limit is evaluated in each state.
 """
 
 from __future__ import annotations
@@ -14,7 +15,7 @@ import datetime
 from dataclasses import dataclass
 from typing import Callable, Iterator, Sequence
 
-from checker.analysis.montecarlo import monte_carlo, outcomes_in_order
+from checker.analysis.montecarlo import monte_carlo, outcomes_in_order, state_key
 from checker.analysis.boxpoints import BoxPoints
 from checker.analysis.sensitivity import Key, Target, outcomes_at, side_swings
 from checker.analysis.tolerances import toleranced
@@ -25,7 +26,7 @@ from checker.findings import Analysis, CircuitResult, Finding, Findings, Outcome
 from checker.limits.engine import LimitSet, names_used
 from checker.lints import lint_circuit
 from checker.limits.waivers import apply_waivers
-from checker.solver import Cache, solve_cases
+from checker.solver import Cache, solve_states
 
 Drivers = tuple[tuple[str, float], ...]
 
@@ -77,13 +78,15 @@ def _worst_case(design: Design, points: Sequence[OperatingPoint], targets: Seque
     return results
 
 
-def _local_drivers(design: Design, points: Sequence[OperatingPoint], targets: Sequence[Target],
-                   worst_case_of: dict[Key, str]) -> dict[Key, Drivers]:
-    """Drivers at the nominal point of each target's worst case: the side deciding there (one batch per case)."""
+def _local_drivers(points: Sequence[OperatingPoint], targets: Sequence[Target],
+                   worst_case_of: dict[Key, tuple[str, str]]) -> dict[Key, Drivers]:
+    """Drivers at the nominal point of each target's worst case (and state): the side deciding there
+    (one batch per case)."""
     drivers: dict[Key, Drivers] = {}
     cache = Cache()
-    for netlist, point in zip(design.netlists, points):
-        group = [t for t in targets if worst_case_of.get(t.key) == netlist.case]
+    for point in points:
+        netlist = point.netlist
+        group = [t for t in targets if worst_case_of.get(t.key) == state_key(point)]
         tolerances = toleranced(netlist)
         if group and tolerances and len(tolerances) <= MAX_TOLERANCED_PARTS:
             box = BoxPoints(netlist, tolerances, point, cache)
@@ -96,10 +99,13 @@ def _local_drivers(design: Design, points: Sequence[OperatingPoint], targets: Se
 def _monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Sequence[Target],
                  analysis: Analysis, report: Callable[[str], None]) -> dict[Key, Result]:
     tally, drawn = monte_carlo(design, points, targets, analysis.samples or 1, analysis.seed or 0, report)
-    cases = design.cases
-    outcomes = {key: outcomes_in_order(tally, key, cases) for key in tally.worst}
-    worst_case_of = {key: min(found, key=lambda o: o.margin).case for key, found in outcomes.items()}
-    drivers = _local_drivers(design, points, targets, worst_case_of)
+    order = [state_key(point) for point in points]
+    outcomes = {key: outcomes_in_order(tally, key, order) for key in tally.worst}
+    worst_case_of = {}
+    for key, found in outcomes.items():
+        worst = min(found, key=lambda o: o.margin)
+        worst_case_of[key] = (worst.case, worst.state)
+    drivers = _local_drivers(points, targets, worst_case_of)
     return {key: Result(tuple(found), drivers.get(key, ()), tally.failed.get(key, 0) / drawn)
             for key, found in outcomes.items()}
 
@@ -126,7 +132,7 @@ def analyse(limit_set: LimitSet, designs: Sequence[Design], today: datetime.date
     for design in designs:
         report(f"solving {design.name}: {len(design.netlists)} case(s), {len(design.parts)} part(s)")
         with located_at(design):
-            points = tuple(solve_cases(design.netlists))
+            points = tuple(point for states in solve_states(design.netlists) for point in states.points)
             circuits.append(CircuitResult(design.name, design.title, design.path, points))
             targets = targets_of(limit_set, design.name)
             if analysis.mode == "worst-case":

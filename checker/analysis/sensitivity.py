@@ -12,7 +12,7 @@ while each side does. All the points of one case are solved as one batch.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Sequence
 
 import numpy as np
@@ -65,13 +65,14 @@ class SideSwing:
 
 
 def outcomes_at(targets: Sequence[Target], point: OperatingPoint, corner: str = "") -> dict[Key, Outcome]:
-    """Each target's outcome at one operating point; targets whose parts are absent are left out."""
+    """Each target's outcome at one operating point, labelled with its stable state; targets whose
+    parts are absent are left out."""
     values = CaseValues(point)
     found = {}
     for target in targets:
         outcome = target.item.outcome(values, corner)
         if outcome is not None:
-            found[target.key] = outcome
+            found[target.key] = replace(outcome, state=point.state) if point.state else outcome
     return found
 
 

@@ -54,13 +54,17 @@ Drivers = tuple[tuple[str, float], ...]
 
 def worst_case(design: Design, points: Sequence[OperatingPoint], targets: Sequence[Target],
                vertex_values: int = DEFAULT_VERTEX_VALUES) -> dict[Key, list[tuple[Outcome, Drivers]]]:
-    """Per target, its worst outcome and drivers in each case it applies to, in case order."""
+    """Per target, its worst outcome and drivers in each case it applies to, in the order of `points`:
+    one per case, or one per stable state of a case with several, each searched from its own state
+    (docs/analysis.md, "Several states")."""
     found: dict[Key, list] = {}
     cache = Cache()
-    for netlist, point in zip(design.netlists, points):
+    for point in points:
+        netlist = point.netlist
         active = [t for t in targets if t.limit.applies_to(netlist.case)]
-        for key, pair in case_worst(netlist, point, active, toleranced(netlist), cache, vertex_values).items():
-            found.setdefault(key, []).append(pair)
+        for key, (outcome, drivers) in case_worst(netlist, point, active, toleranced(netlist), cache,
+                                                  vertex_values).items():
+            found.setdefault(key, []).append((replace(outcome, state=point.state), drivers))
     return found
 
 

@@ -19,7 +19,7 @@ from checker.repo.config import CONFIG_NAMES
 from checker.report import render_solve_json, render_solve_table
 from checker.report.solve import render_equations
 from checker.report.writer import Planned, write_set
-from checker.solver import solve_cases
+from checker.solver import CaseStates, solve_states
 from checker.solver.assembly import assemble
 from checker.solver.equations import Linearised, linearise, matrix_market
 from checker.solver.selfcheck import conditioning_warnings
@@ -99,7 +99,10 @@ def run(args: argparse.Namespace) -> int:
     if point is not None:
         netlists, at, notes = at_point(netlists, point)
     with located_at(design):
-        points = solve_cases(netlists)
+        states = solve_states(netlists)
+    points = [point for case in states for point in case.points]
+    for note in state_notes(states):
+        print(f"nodegate: note: {note}", file=sys.stderr)
     for warning in conditioning_warnings(points):
         print(f"nodegate: warning: {warning}", file=sys.stderr)
     if args.equations or args.equations_out is not None:
@@ -107,6 +110,19 @@ def run(args: argparse.Namespace) -> int:
         return 0
     show(design.name, points, args.format, at, notes)
     return 0
+
+
+def state_notes(states: Sequence[CaseStates]) -> list[str]:
+    """What the search for operating points found, for each case where it found more than one."""
+    notes = []
+    for case in states:
+        if case.found > 1:
+            shown = len(case.points)
+            notes.append(f"case `{case.points[0].case}` has {case.found} operating points, {case.stable} of them stable"
+                         + (f" (reported as states 1 to {shown})" if shown > 1 else "")
+                         + (" (its `starts at` keeps the nearest)" if case.stable > shown else "")
+                         + "".join(f"; rejected {reason}" for reason in case.rejected))
+    return notes
 
 
 def show_equations(design: Design, points: Sequence[OperatingPoint], out: Path | None, at: Point | None,

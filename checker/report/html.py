@@ -47,7 +47,8 @@ def _reading(number: float, unit: str) -> str:
 
 
 def _case_heading(point: OperatingPoint) -> str:
-    return f"{point.case} ({format_temperature(point.ambient)})"
+    state = f" [state {point.state}]" if point.state else ""
+    return f"{point.case}{state} ({format_temperature(point.ambient)})"
 
 
 def _union(keys_per_case: list[list[str]]) -> list[str]:

@@ -52,7 +52,7 @@ def waiver_json(waiver: Waiver | None) -> dict[str, Any] | None:
 
 
 def outcome_json(outcome: Outcome) -> dict[str, Any]:
-    return {"case": outcome.case, "corner": outcome.corner or None,
+    return {"case": outcome.case, "state": outcome.state or None, "corner": outcome.corner or None,
             "value": finite_or_none(outcome.value), "bound": finite_or_none(outcome.bound),
             "margin": finite_or_none(outcome.margin), "relative": finite_or_none(outcome.relative),
             "unit": outcome.unit, "absolute": outcome.absolute, "holds": outcome.holds,

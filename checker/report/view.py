@@ -134,8 +134,9 @@ def analysis_sentence(analysis: Analysis) -> str:
 
 
 def case_label(outcome: Outcome) -> str:
-    """The case, with the tolerance corner or sample when there is one."""
-    return f"{outcome.case} ({outcome.corner})" if outcome.corner else outcome.case
+    """The case, with its stable state and the tolerance corner or sample when there are."""
+    case = f"{outcome.case} [state {outcome.state}]" if outcome.state else outcome.case
+    return f"{case} ({outcome.corner})" if outcome.corner else case
 
 
 def method_text(outcome: Outcome) -> str:

@@ -83,12 +83,14 @@ def solve_cases(netlists: Sequence[Netlist], cache: Cache | None = None,
 
 @dataclass(frozen=True)
 class CaseStates:
-    """The stable operating points of one case (labelled `1 of 2`, ... when there are several), how
-    many distinct points the search found, and why each unstable one was rejected."""
+    """The stable operating points of one case (labelled `1 of 2`, ... when there are several; only the
+    one its `starts` pick when it has them), how many distinct points and how many stable ones the
+    search found, and why each unstable one was rejected."""
 
     points: tuple[OperatingPoint, ...]
     found: int = 1
     rejected: tuple[str, ...] = ()
+    stable: int = 1
 
 
 def solve_states(netlists: Sequence[Netlist], cache: Cache | None = None) -> list[CaseStates]:
@@ -126,10 +128,12 @@ def _case_states(system: System, found: Search, first: OperatingPoint) -> CaseSt
     for number, state in enumerate(stable, 1):
         check_models(system, state.x)
         label = f"{number} of {len(stable)}" if len(stable) > 1 else ""
+        newton_found = state is found.points[0]
         with _watched(netlist):
-            solved = operating_point(system, state.x, first.iterations, first.strategy)
+            solved = operating_point(system, state.x, first.iterations,
+                                     first.strategy if newton_found else "state search")
         points.append(replace(solved, state=label))
-    return CaseStates(tuple(points), len(found.points), rejected)
+    return CaseStates(tuple(points), len(found.points), rejected, len(found.stable))
 
 
 def _distance(system: System, x: np.ndarray, starts: Sequence[tuple[str, float]]) -> float:
