@@ -30,6 +30,7 @@ unknowns are judged by the determinant only.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
 import scipy.linalg
@@ -40,6 +41,8 @@ from checker.solver.assembly import System
 
 DENSE_LIMIT = 600  # unknowns: up to here every eigenvalue is computed (dense, O(n^3))
 GROWTH = 1e-9  # an eigenvalue's real part above this share of the largest magnitude grows
+FOLD = 1e-6  # a mode slower than this share of the fastest makes the Jacobian singular within rounding
+FOLD_STEP = 1e-3  # of the largest net voltage (at least 1 V): how far the fold test looks to each side
 
 
 @dataclass(frozen=True)
@@ -103,32 +106,75 @@ def _parity(permutation: np.ndarray) -> int:
     return (permutation.size - cycles) % 2
 
 
-def assess(system: System, jacobian: sp.spmatrix) -> Stability:
-    """The stability of the point whose Jacobian (at sources 1, no shunt) is `jacobian`."""
+def assess(system: System, jacobian: sp.spmatrix, x: np.ndarray | None = None,
+           residual: Callable[[np.ndarray], np.ndarray] | None = None) -> Stability:
+    """The stability of the point `x` whose Jacobian (at sources 1, no shunt) is `jacobian`;
+    with `residual` (F at any x), a point where the Jacobian is singular within rounding is
+    also checked for a fold (see `_fold`)."""
     passive = sp.diags(branch_flips(system)) @ jacobian
     small = system.size <= DENSE_LIMIT
     if determinant_sign(passive) < 0:
         return Stability(False, True, "the determinant of its Jacobian has the sign opposite to a passive "
                                       "circuit's, so it is unstable whatever the parasitic capacitances and "
-                                      "inductances are", _growing(system, passive)[1] if small else None)
+                                      "inductances are", _modes(system, passive).growing if small else None)
     if not small:
         return Stability(True)
-    growth, direction = _growing(system, passive)
-    if growth > 0.0:
+    modes = _modes(system, passive)
+    if modes.growth > 0.0:
         return Stability(False, False, "a small disturbance grows (its equations linearised with a unit "
-                                       "capacitance on every net have a mode with positive real part)", direction)
+                                       "capacitance on every net have a mode with positive real part)",
+                         modes.growing)
+    if x is not None and residual is not None and _fold(system, modes, x, residual):
+        return Stability(False, False, "it sits on a fold, where two operating points meet (a constant-power "
+                                       "load at its maximum power, for example): its Jacobian is singular and "
+                                       "a disturbance to one side does not come back", modes.slowest)
     return Stability(True)
 
 
-def _growing(system: System, passive: sp.spmatrix) -> tuple[float, np.ndarray]:
-    """The real part of the fastest-growing finite mode of the nets' charge (0 when none grows beyond
-    rounding) and that mode as a vector of unknowns."""
-    values, vectors = scipy.linalg.eig(-passive.toarray(), np.diag(charge_masses(system)))
+@dataclass(frozen=True)
+class Modes:
+    """The finite modes of the nets' charge at a point: the fastest growth rate (0: none grows beyond
+    rounding) and its mode, the slowest mode with its left vector and rate, and the largest rate (at
+    least the largest conductance at a net, with unit capacitances a rate too)."""
+
+    growth: float
+    growing: np.ndarray
+    slowest: np.ndarray
+    slowest_left: np.ndarray
+    slowest_rate: float
+    largest: float
+
+
+def _modes(system: System, passive: sp.spmatrix) -> Modes:
+    masses = np.diag(charge_masses(system))
+    values, left, right = scipy.linalg.eig(-passive.toarray(), masses, left=True, right=True)
     finite = np.isfinite(values)
     if not np.any(finite):
-        return 0.0, np.zeros(system.size)
+        none = np.zeros(system.size)
+        return Modes(0.0, none, none, none, np.inf, 0.0)
     real = np.where(finite, values.real, -np.inf)
     k = int(np.argmax(real))
-    largest = float(np.max(np.abs(values[finite])))
-    growth = real[k] if real[k] > GROWTH * max(largest, 1e-300) else 0.0
-    return float(growth), np.real(vectors[:, k])
+    conductances = np.abs(passive.diagonal()[:system.n_nodes])  # the scale when one mode is all there is
+    largest = max(float(np.max(np.abs(values[finite]))), float(np.max(conductances, initial=0.0)))
+    growth = float(real[k]) if real[k] > GROWTH * max(largest, 1e-300) else 0.0
+    slow = int(np.argmin(np.where(finite, np.abs(values), np.inf)))
+    return Modes(growth, np.real(right[:, k]), np.real(right[:, slow]), np.real(left[:, slow]),
+                 float(abs(values[slow])), largest)
+
+
+def _fold(system: System, modes: Modes, x: np.ndarray, residual: Callable[[np.ndarray], np.ndarray]) -> bool:
+    """Whether the point is a fold: its slowest mode is zero within rounding (below FOLD of the
+    fastest), and along it the residual pushes the same way on both sides, so a disturbance to one
+    side runs away (a saddle-node: the residual is quadratic, not linear, along that mode)."""
+    if modes.largest == 0.0 or modes.slowest_rate > FOLD * modes.largest:
+        return False
+    nodes = system.n_nodes
+    direction = modes.slowest / max(float(np.max(np.abs(modes.slowest[:nodes]), initial=0.0)), 1e-300)
+    step = FOLD_STEP * max(1.0, float(np.max(np.abs(x[:nodes]), initial=0.0)))
+    flips, masses = branch_flips(system), charge_masses(system)
+    weight = float(modes.slowest_left @ (masses * direction))
+    if weight == 0.0:
+        return False
+    pushes = [float(modes.slowest_left @ (flips * residual(x + side * step * direction))) / weight
+              for side in (1.0, -1.0)]
+    return not (pushes[0] > 0.0 > pushes[1])

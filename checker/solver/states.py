@@ -51,6 +51,7 @@ SETTLE_ITERATIONS = 150  # pseudo-time steps of one settling run
 DEFLATED_ITERATIONS = 40  # Newton iterations of one deflated run
 START_DAMPING = 10.0  # times the fastest mode's rate: the first pseudo-time steps are short against it
 DECAY = 0.7  # the pseudo-time damping shrinks by this factor at every step
+NEWTON_EVERY = 10  # pseudo-time steps between tries of plain Newton where no mode grows
 SETTLE_RESIDUAL = 1e3  # times the convergence test's residual tolerance: close enough to finish with Newton
 # (control pins, output pins) of the parts with gain, for the feedback test of `may_have_several`.
 GAIN_PINS = {
@@ -89,7 +90,8 @@ class Search:
             if np.all(np.abs(point.x[:nodes] - x[:nodes]) <= SAME_VOLTS * (1.0 + np.abs(x[:nodes]))):
                 return False
         _, jacobian, _ = self.equations.linearise(x)
-        self.points.append(Point(x, assess(self.equations.system, jacobian)))
+        self.points.append(Point(x, assess(self.equations.system, jacobian, x,
+                                           lambda y: self.equations.linearise(y)[0])))
         return True
 
     def spend(self) -> bool:
@@ -215,7 +217,8 @@ def settle(equations: Equations, x: np.ndarray) -> Run:
     step grows geometrically, but never beyond half the time constant of a mode still growing: a
     backward-Euler step longer than that would pull the iterate back to the unstable point it is
     leaving. So unlike Newton, which is drawn to any root, it follows a disturbance down to a stable
-    state, and an op-amp output started at a rail stays there while the circuit around it settles."""
+    state, and an op-amp output started at a rail stays there while the circuit around it settles.
+    Where no mode grows, plain Newton is tried every NEWTON_EVERY steps, to finish early."""
     system = equations.system
     masses = branch_flips(system) * settling_masses(system)
     residual, jacobian, row_scale = equations.linearise(x)
@@ -224,10 +227,14 @@ def settle(equations: Equations, x: np.ndarray) -> Run:
     fastest, growth = _modes(jacobian, masses)
     damping = START_DAMPING * fastest
     _, residual_tol = equations.tolerances()
+    spent = 0
     for iteration in range(1, SETTLE_ITERATIONS + 1):
-        if np.all(np.abs(residual) <= SETTLE_RESIDUAL * (residual_tol + RELATIVE_TOLERANCE * row_scale)):
+        near = np.all(np.abs(residual) <= SETTLE_RESIDUAL * (residual_tol + RELATIVE_TOLERANCE * row_scale))
+        if near or (not growth and iteration % NEWTON_EVERY == 1):
             run = iterate(equations, x, 0.0, 1.0, MAX_ITERATIONS)
-            return Run(run.x, iteration + run.iterations, run.converged)
+            spent += run.iterations
+            if run.converged or near:
+                return Run(run.x, iteration + spent, run.converged)
         try:
             step = Factor(jacobian + sp.diags(damping * masses), equations.netlist).solve(-residual)
         except NoSolutionError:
@@ -241,7 +248,7 @@ def settle(equations: Equations, x: np.ndarray) -> Run:
         if growth:
             growth = _modes(jacobian, masses)[1]
         damping = max(damping * DECAY, 2.0 * growth)
-    return Run(x, SETTLE_ITERATIONS, False)
+    return Run(x, SETTLE_ITERATIONS + spent, False)
 
 
 def settling_masses(system: System) -> np.ndarray:
