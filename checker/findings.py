@@ -110,6 +110,7 @@ class Remedy:
     absolute: bool = False  # margin of an absolute temperature: shown in K either way
     limits: int = 0  # how many limits of the circuit were confirmed
     breaks: tuple[str, ...] = ()
+    failing: tuple[str, ...] = ()  # every other limit that fails with the change (`breaks` among them)
 
     @property
     def name(self) -> str:

@@ -34,6 +34,7 @@ import dataclasses
 import datetime
 import math
 import re
+import time
 from dataclasses import dataclass
 from typing import Callable, Sequence
 
@@ -55,9 +56,12 @@ from checker.units import display_symbol, parse_unit
 DEFAULT_SOLVES = 3000
 """Solves the root searches of one check may spend (each netlist solved counts one): a grid and about
 fifteen refining steps per candidate and failing case, so about 20 findings of 4 candidates."""
-DEFAULT_CONFIRMATIONS = 8
+DEFAULT_CONFIRMATIONS = 6
 """Whole-circuit confirmations one check may spend in the configured analysis (a worst-case
 confirmation costs as much as the check of that circuit itself). Nominal pre-checks are not counted."""
+DEFAULT_SECONDS = 60.0
+"""Wall-clock seconds the remedy search of one check may take; no new search or confirmation starts
+after them (one that has started finishes)."""
 MAX_CANDIDATES = 4  # values tried per finding
 MAX_REMEDIES = 3  # remedies listed per finding
 SWING_BAND = 0.01  # ±1 %: the move that ranks candidates
@@ -65,6 +69,7 @@ GRID = (1.02, 1.05, 1.1, 1.25, 1.5, 2.0, 3.0, 5.0, 10.0, 30.0, 100.0)  # factors
 ROOT_TOLERANCE = 1e-13  # the bracket's width in ln(value) at which the root search stops
 MAX_STEPS = 80
 PACK = "pack:preferred-values"
+STOPPED = "remedy search stopped early: its budget is spent (docs/remedies.md, \"Budget\")"
 ADJUSTABLE = frozenset({"value", "vout", "rating", "dropout", "vmax", "imax", "pmax",
                         "vce_max", "vds_max", "vgs_max"})
 """Properties a remedy may change when a check reads them by name: a different part (a lower dropout,
@@ -81,17 +86,25 @@ class Budget:
 
     solves: int = DEFAULT_SOLVES
     confirmations: int = DEFAULT_CONFIRMATIONS
+    seconds: float = DEFAULT_SECONDS
     spent: bool = False
+    started: float = dataclasses.field(default_factory=time.monotonic)
+
+    @property
+    def out_of_time(self) -> bool:
+        if time.monotonic() - self.started > self.seconds:
+            self.spent = True
+        return self.spent
 
     def take_solves(self, count: int) -> bool:
-        if count > self.solves:
+        if count > self.solves or self.out_of_time:
             self.spent = True
             return False
         self.solves -= count
         return True
 
     def take_confirmation(self) -> bool:
-        if self.confirmations <= 0:
+        if self.confirmations <= 0 or self.out_of_time:
             self.spent = True
             return False
         self.confirmations -= 1
@@ -340,16 +353,20 @@ def confirm(context: Context, finding: Finding, before: Sequence[Finding], candi
     mine = LimitSet(tuple(c for c in compiled.limits if c.circuit == finding.circuit), compiled.waivers)
     after = [f for f in analyse(mine, [changed], context.today, analysis).findings if not f.lint]
     held = {f.key for f in before if f.status in ("pass", "waived")}
-    broken = tuple(sorted({f.limit.id + (f" [{f.item}]" if f.item else "") for f in after
-                           if f.status in ("fail", "warn") and f.key in held}))
+    failing = [f for f in after if f.status in ("fail", "warn")]
+    broken = tuple(sorted({_named(f) for f in failing if f.key in held}))
     fixed = next((f for f in after if f.key == finding.key), None)
     worst = fixed.worst if fixed is not None else finding.worst
     remedy = Remedy(knob.part, knob.prop, knob.value, candidate.to, knob.series,
                     worst.margin if fixed is not None else math.nan,
                     all(f.status in ("pass", "waived") for f in after), candidate.root, knob.unit,
                     worst.relative if fixed is not None else math.nan, worst.unit, worst.absolute,
-                    len(after), broken)
+                    len(after), broken, tuple(sorted({_named(f) for f in failing if f.key != finding.key})))
     return Confirmed(remedy, fixed is not None and fixed.status in ("pass", "waived"))
+
+
+def _named(finding: Finding) -> str:
+    return finding.limit.id + (f" [{finding.item}]" if finding.item else "")
 
 
 # --- one finding, one check ---------------------------------------------------------------------
@@ -378,44 +395,77 @@ def _change(candidate: Candidate) -> float:
     return abs(math.log(abs(candidate.to / candidate.knob.value)))
 
 
-def remedies_of(context: Context, finding: Finding, before: Sequence[Finding], budget: Budget,
-                cache: Cache) -> tuple[tuple[Remedy, ...], str]:
-    """The remedies of one finding, best first, and a note (none found, none holds every limit, budget)."""
+def _good(confirmed: Confirmed) -> bool:
+    """Fixes its limit and breaks no limit that held: what a reviewer can apply as it is."""
+    return confirmed.fixes and not confirmed.remedy.breaks
+
+
+@dataclass
+class Search:
+    """One finding's search: its candidates screened at nominal (best first), and those confirmed."""
+
+    finding: Finding
+    before: tuple[Finding, ...]
+    screened: list[tuple[Confirmed, Candidate]]
+    note: str = ""
+    confirmed: list[Confirmed] = dataclasses.field(default_factory=list)
+    cut: bool = False
+
+    def next_candidate(self) -> Candidate | None:
+        """The next candidate worth confirming: the next screened one, but once a good remedy is
+        confirmed only those good at nominal (a worst case is never better than nominal), and never
+        more than MAX_REMEDIES good ones, or MAX_REMEDIES when none is good."""
+        good = [c for c in self.confirmed if _good(c)]
+        if len(good) >= MAX_REMEDIES or (not good and len(self.confirmed) >= MAX_REMEDIES):
+            return None
+        for screened, candidate in self.screened[len(self.confirmed):]:
+            return candidate if not good or _good(screened) else None
+        return None
+
+    def result(self) -> tuple[tuple[Remedy, ...], str]:
+        good = [c for c in self.confirmed if _good(c)]
+        chosen = sorted(good, key=lambda c: not c.remedy.all_limits_hold)[:MAX_REMEDIES] or \
+            sorted(self.confirmed, key=lambda c: (not c.fixes, len(c.remedy.breaks)))[:MAX_REMEDIES]
+        notes = [self.note] if self.note and not chosen else []
+        if chosen and not good:
+            notes.append("no single change fixes this limit without breaking another; the best partial ones follow")
+        if self.cut:
+            notes.append(STOPPED)
+        return tuple(c.remedy for c in chosen), "; ".join(notes)
+
+
+def screen(context: Context, finding: Finding, before: Sequence[Finding], budget: Budget, cache: Cache) -> Search:
+    """A finding's candidates, each checked at nominal against every limit, best first (in a nominal
+    analysis that check is the confirmation)."""
     design = next(d for d in context.designs if d.name == finding.circuit)
     point = _nominal_point(design, finding.worst.case, cache)
     if point is None:
-        return (), "the worst case has no nominal operating point to search from"
-    target = _target(context, design, finding)
-    candidates, note = _candidates(finding, design, target, point, budget, cache)
-    if not candidates:
-        return (), ("remedy search stopped early: its budget is spent" if budget.spent else note)
-    nominal = context.analysis.mode == "nominal"
+        return Search(finding, tuple(before), [], "the worst case has no nominal operating point to search from")
+    candidates, note = _candidates(finding, design, _target(context, design, finding), point, budget, cache)
     screened = [(confirm(context, finding, before, c, Analysis()), c) for c in candidates]
-    screened.sort(key=lambda pair: (not pair[0].remedy.all_limits_hold, not pair[0].fixes,
+    screened.sort(key=lambda pair: (not _good(pair[0]), not pair[0].remedy.all_limits_hold, not pair[0].fixes,
                                     len(pair[0].remedy.breaks), _change(pair[1])))
-    holding, partial, cut = [], [], False
-    for first, candidate in screened:
-        if len(holding) >= MAX_REMEDIES or (holding and not first.remedy.all_limits_hold) \
-                or len(partial) >= MAX_REMEDIES:
-            break
-        if nominal:
-            result = first
-        elif budget.take_confirmation():
-            result = confirm(context, finding, before, candidate, context.analysis)
-        else:
-            cut = True
-            break
-        (holding if result.remedy.all_limits_hold else partial).append(result)
-    partial.sort(key=lambda r: (not r.fixes, len(r.remedy.breaks)))
-    chosen = holding or partial[:MAX_REMEDIES]
-    notes = []
-    if chosen and not holding and all(r.fixes and not r.remedy.breaks for r in chosen):
-        notes.append("each fixes this limit and breaks no other; limits that failed before still fail")
-    elif chosen and not holding:
-        notes.append("no single change keeps every limit holding; the best partial ones follow")
-    if cut:
-        notes.append("remedy search stopped early: its budget of confirmations is spent")
-    return tuple(r.remedy for r in chosen), "; ".join(notes)
+    search = Search(finding, tuple(before), screened, STOPPED if not candidates and budget.spent else note)
+    if context.analysis.mode == "nominal":
+        while (candidate := search.next_candidate()) is not None:
+            search.confirmed.append(next(s for s, c in screened if c is candidate))
+    return search
+
+
+def confirm_all(context: Context, searches: Sequence[Search], budget: Budget) -> None:
+    """Confirmations in the configured analysis, breadth first: each finding's best candidate, then each
+    one's second, ..., so that a spent budget leaves every finding its best remedy it could afford."""
+    while True:
+        pending = [(search, search.next_candidate()) for search in searches]
+        pending = [(search, candidate) for search, candidate in pending if candidate is not None]
+        if not pending:
+            return
+        for search, candidate in pending:
+            if not budget.take_confirmation():
+                for rest, _ in pending:
+                    rest.cut = True
+                return
+            search.confirmed.append(confirm(context, search.finding, search.before, candidate, context.analysis))
 
 
 def _nominal_point(design: Design, case: str, cache: Cache) -> OperatingPoint | None:
@@ -440,13 +490,18 @@ def with_remedies(findings: Findings, files: Sequence[LimitFile], designs: Seque
                     key=lambda f: (f.status != "fail", f.worst.relative))
     cache = Cache()
     found: dict[tuple[str, str, str], tuple[tuple[Remedy, ...], str]] = {}
+    searches = []
     for finding in wanted:
         if budget.spent:
-            found[finding.key] = ((), "remedy search stopped early: its budget is spent")
+            found[finding.key] = ((), STOPPED)
             continue
         report(f"{finding.circuit}: remedies for {finding.limit.id}")
         before = [f for f in findings.findings if f.circuit == finding.circuit and not f.lint]
-        found[finding.key] = remedies_of(context, finding, before, budget, cache)
+        searches.append(screen(context, finding, before, budget, cache))
+    if analysis.mode != "nominal":
+        report(f"confirming remedies ({analysis.mode})")
+        confirm_all(context, searches, budget)
+    found.update((search.finding.key, search.result()) for search in searches)
     updated = tuple(dataclasses.replace(f, remedies=found[f.key][0], remedy_note=found[f.key][1])
                     if f.key in found else f for f in findings.findings)
     return dataclasses.replace(findings, findings=updated)

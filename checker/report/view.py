@@ -332,12 +332,17 @@ def remedy_text(remedy: Remedy) -> str:
     else:
         margin = "the limit no longer applies"
     if remedy.all_limits_hold:
-        held = f"all {remedy.limits} limits hold" if remedy.limits > 1 else "the only limit holds"
-    elif remedy.breaks:
-        held = "breaks " + ", ".join(remedy.breaks)
-    else:
-        held = "limits that failed before still fail"
-    return f"{change}: {margin}; {held}"
+        return f"{change}: {margin}; " + (f"all {remedy.limits} limits hold" if remedy.limits > 1
+                                           else "the only limit holds")
+    others = [name for name in remedy.failing if name not in remedy.breaks]
+    held = (["breaks " + _names(remedy.breaks)] if remedy.breaks else []) + \
+        ([f"{_names(others)} still fail{'s' if len(others) == 1 else ''}"] if others else [])
+    return f"{change}: {margin}; " + "; ".join(held or ["other limits fail"])
+
+
+def _names(names) -> str:
+    names = list(names)
+    return ", ".join(names[:3]) + (f" and {len(names) - 3} more" if len(names) > 3 else "")
 
 
 def make_note(note: WaiverNote) -> NoteRow:

@@ -14,6 +14,7 @@ from checker.remedies.search import Budget, with_remedies
 from checker.report import summary_lines
 from checker.report.json_report import render_json
 from checker.report.markdown import render_markdown
+from checker.report.view import remedy_text
 
 TODAY = datetime.date(2030, 1, 1)
 LED = ('circuit bench "Bench"\nground gnd\n'
@@ -45,7 +46,10 @@ def test_preferred_values_pack_names_the_nearest_value_and_both_neighbours():
     assert [r.to_value for r in warned["C1"].remedies] == [4.7e-6, 6.8e-6]  # E6
     for finding in warned.values():  # the other warnings stay: no single change makes every limit hold
         assert all(r.margin_after == 0.0 and not r.breaks and not r.all_limits_hold for r in finding.remedies)
-        assert finding.remedy_note == "each fixes this limit and breaks no other; limits that failed before still fail"
+        assert not finding.remedy_note and all(len(r.failing) == 2 for r in finding.remedies)
+    assert warned["R1"].remedies[0].failing == ("preferred-capacitor-value [C1]", "preferred-resistor-value [R2]")
+    assert remedy_text(warned["R1"].remedies[0]).endswith(
+        "; preferred-capacitor-value [C1], preferred-resistor-value [R2] still fail")
 
 
 def test_design_lints_get_no_remedies():
