@@ -218,7 +218,8 @@ def settle(equations: Equations, x: np.ndarray) -> Run:
     backward-Euler step longer than that would pull the iterate back to the unstable point it is
     leaving. So unlike Newton, which is drawn to any root, it follows a disturbance down to a stable
     state, and an op-amp output started at a rail stays there while the circuit around it settles.
-    Where no mode grows, plain Newton is tried every NEWTON_EVERY steps, to finish early."""
+    Where no mode grows, plain Newton is tried every NEWTON_EVERY steps, to finish early when it
+    reaches a stable point."""
     system = equations.system
     masses = branch_flips(system) * settling_masses(system)
     residual, jacobian, row_scale = equations.linearise(x)
@@ -233,7 +234,7 @@ def settle(equations: Equations, x: np.ndarray) -> Run:
         if near or (not growth and iteration % NEWTON_EVERY == 1):
             run = iterate(equations, x, 0.0, 1.0, MAX_ITERATIONS)
             spent += run.iterations
-            if run.converged or near:
+            if near or (run.converged and _stable(equations, run.x)):
                 return Run(run.x, iteration + spent, run.converged)
         try:
             step = Factor(jacobian + sp.diags(damping * masses), equations.netlist).solve(-residual)
@@ -249,6 +250,12 @@ def settle(equations: Equations, x: np.ndarray) -> Run:
             growth = _modes(jacobian, masses)[1]
         damping = max(damping * DECAY, 2.0 * growth)
     return Run(x, SETTLE_ITERATIONS + spent, False)
+
+
+def _stable(equations: Equations, x: np.ndarray) -> bool:
+    """Whether a point Newton reached early is stable: Newton is drawn to any root, the unstable one
+    the settling run started beside included."""
+    return assess(equations.system, equations.linearise(x)[1]).stable
 
 
 def settling_masses(system: System) -> np.ndarray:
