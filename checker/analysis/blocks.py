@@ -19,24 +19,34 @@ from typing import Sequence
 from checker.analysis.stacked import Located
 from checker.design import Netlist, OperatingPoint
 from checker.errors import NodegateError
-from checker.solver import Cache, solve_cases
+from checker.solver import Cache, solve_cases, stable_near
 
 MARK = "#"  # joins a name and its block number; never part of a name in the circuit language
 
 
 def solve_each(netlists: Sequence[Netlist], cache: Cache,
-               guesses: Sequence[OperatingPoint]) -> list[OperatingPoint | str]:
+               guesses: Sequence[OperatingPoint | None]) -> list[OperatingPoint | str]:
     """Each netlist's operating point by the ordinary solver (full fallback), or the message of why it
-    has none: one batch, and one netlist at a time only when the batch meets a point without one."""
+    has none: one batch, and one netlist at a time only when the batch meets a point without one.
+    Each point is a stable one, in the state of its guess where that state still exists (`stable_near`):
+    tolerance analysis follows each stable state of a case and never reports an unstable point."""
     try:
-        return list(solve_cases(netlists, cache, guesses))
+        solved = solve_cases(netlists, cache, guesses)
     except NodegateError:
         return [_one(netlist, cache, guess) for netlist, guess in zip(netlists, guesses)]
+    return [_stable(point, guess, cache) for point, guess in zip(solved, guesses)]
 
 
 def _one(netlist: Netlist, cache: Cache, guess: OperatingPoint) -> OperatingPoint | str:
     try:
-        return solve_cases([netlist], cache, [guess])[0]
+        return _stable(solve_cases([netlist], cache, [guess])[0], guess, cache)
+    except NodegateError as error:
+        return error.message
+
+
+def _stable(point: OperatingPoint, guess: OperatingPoint | None, cache: Cache) -> OperatingPoint | str:
+    try:
+        return stable_near(point, guess, cache)
     except NodegateError as error:
         return error.message
 

@@ -34,7 +34,8 @@ from checker.solver.linear import Factor
 from checker.solver.newton import check_models, newton
 from checker.solver.results import operating_point, warm_start
 from checker.solver.sharing import Group, signature
-from checker.solver.states import Point, Search, search, seeded
+from checker.solver.newton import Equations
+from checker.solver.states import Point, Search, assess_at, may_have_several, search, seeded, settled
 from checker.solver.topology import Cache
 from checker.units import format_value
 
@@ -114,6 +115,30 @@ def solve_states(netlists: Sequence[Netlist], cache: Cache | None = None) -> lis
             found = search(system, x, seeds)
         result.append(_case_states(system, found, point))
     return result
+
+
+def stable_near(point: OperatingPoint, guess: OperatingPoint | None, cache: Cache | None = None) -> OperatingPoint:
+    """`point`, solved from `guess` (a stable state of a netlist like it: a tolerance corner or sample
+    started at its case's state), when its circuit cannot have several operating points or it is
+    stable; otherwise the stable point it settles to from there, the one nearest the guess. A state
+    can vanish at a corner (a hysteresis band moved past the input), and Newton then may stop on the
+    unstable balance point, where no board rests. NoSolutionError when no stable point is reached."""
+    netlist = point.netlist
+    if not may_have_several(netlist):
+        return point
+    system = assemble(netlist, (cache or Cache()).topology(netlist))
+    x = warm_start(system, point)
+    with _watched(netlist):
+        found = settled(system, x)
+    if found is None:
+        raise _no_stable_point(system, Search(Equations(system), [Point(x, assess_at(system, x))]))
+    if found is x:
+        return point
+    near = warm_start(system, guess or point)
+    best = min(found, key=lambda y: float(np.linalg.norm(y[:system.n_nodes] - near[:system.n_nodes])))
+    check_models(system, best)
+    with _watched(netlist):
+        return replace(operating_point(system, best, point.iterations, "state search"), state=point.state)
 
 
 def _case_states(system: System, found: Search, first: OperatingPoint) -> CaseStates:

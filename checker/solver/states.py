@@ -32,7 +32,7 @@ import numpy as np
 import scipy.linalg
 import scipy.sparse as sp
 
-from checker.design import Part
+from checker.design import Netlist, Part
 from checker.errors import NoSolutionError
 from checker.solver.assembly import System
 from checker.solver.linear import Factor
@@ -89,9 +89,7 @@ class Search:
         for point in self.points:
             if np.all(np.abs(point.x[:nodes] - x[:nodes]) <= SAME_VOLTS * (1.0 + np.abs(x[:nodes]))):
                 return False
-        _, jacobian, _ = self.equations.linearise(x)
-        self.points.append(Point(x, assess(self.equations.system, jacobian, x,
-                                           lambda y: self.equations.linearise(y)[0])))
+        self.points.append(Point(x, assess_at(self.equations.system, x)))
         return True
 
     def spend(self) -> bool:
@@ -102,7 +100,7 @@ class Search:
         return True
 
 
-def may_have_several(system: System) -> bool:
+def may_have_several(netlist: Netlist) -> bool:
     """Whether the circuit could have several operating points: it has a constant-power load or a
     converter input not held by sources (a falling characteristic), or a part with gain whose
     output can reach its own input.
@@ -114,8 +112,8 @@ def may_have_several(system: System) -> bool:
     two-terminal parts influence each other both ways; a part with gain carries influence from its
     control pins to its output pins; a net held by voltage sources from ground carries none. Any loop
     counts, negative feedback included, which only costs a search that finds nothing more."""
-    parts = system.netlist.parts
-    group = _joined_nets(system)
+    parts = netlist.parts
+    group = _joined_nets(netlist)
     if any(_falls(part, group) for part in parts):
         return True
     arrows: dict[int, set[int]] = {}
@@ -144,11 +142,11 @@ def _falls(part: Part, group: dict[str, int | None]) -> bool:
     return any(group[net] is not None for net in pins)
 
 
-def _joined_nets(system: System) -> dict[str, int | None]:
+def _joined_nets(netlist: Netlist) -> dict[str, int | None]:
     """Each net's group of nets joined by two-terminal parts, or None for a net voltage sources hold
     against ground (it passes no influence on)."""
-    parts = system.netlist.parts
-    held = {system.netlist.ground}
+    parts = netlist.parts
+    held = {netlist.ground}
     grew = True
     while grew:
         grew = False
@@ -156,7 +154,7 @@ def _joined_nets(system: System) -> dict[str, int | None]:
             if part.kind == "source" and part.value_unit == "V" and len(held & set(part.nets)) == 1:
                 held |= set(part.nets)
                 grew = True
-    leader = {net: net for net in system.nets}
+    leader = {net: net for net in netlist.nets}
 
     def find(net: str) -> str:
         while leader[net] != net:
@@ -168,7 +166,7 @@ def _joined_nets(system: System) -> dict[str, int | None]:
             a, b = part.nets
             leader[find(a)] = find(b)
     numbers: dict[str, int] = {}
-    return {net: None if net in held else numbers.setdefault(find(net), len(numbers)) for net in system.nets}
+    return {net: None if net in held else numbers.setdefault(find(net), len(numbers)) for net in netlist.nets}
 
 
 def _reaches(arrows: dict[int, set[int]], starts: set[int], goals: set[int]) -> bool:
@@ -188,7 +186,7 @@ def search(system: System, x: np.ndarray, seeds: Iterable[np.ndarray] = ()) -> S
     """Every operating point found from the solution `x` and the given `seeds`, each with its stability."""
     found = Search(Equations(system))
     found.add(x)
-    if not may_have_several(system) and found.points[0].stability.stable:
+    if not may_have_several(system.netlist) and found.points[0].stability.stable:
         return found
     for seed in [*seeds, *_continued(found.equations), *_rails(found)]:
         _settle_from(found, seed)
@@ -199,6 +197,25 @@ def search(system: System, x: np.ndarray, seeds: Iterable[np.ndarray] = ()) -> S
             _settle_from(found, start)
         _deflate(found)
     return found
+
+
+def assess_at(system: System, x: np.ndarray) -> Stability:
+    """The stability of the point `x` of `system` (`stability.assess`, with the fold test)."""
+    equations = Equations(system)
+    return assess(system, equations.linearise(x)[1], x, lambda y: equations.linearise(y)[0])
+
+
+def settled(system: System, x: np.ndarray) -> list[np.ndarray] | np.ndarray | None:
+    """`x` itself when it is a stable point; otherwise the stable points reached by settling from
+    both sides of it along its growing mode (None when neither side reaches one)."""
+    stability = assess_at(system, x)
+    if stability.stable:
+        return x
+    found = Search(Equations(system))
+    for start in _off_unstable([Point(x, stability)], system.n_nodes):
+        _settle_from(found, start)
+    stable = [point.x for point in found.stable]
+    return stable or None
 
 
 def _settle_from(found: Search, start: np.ndarray) -> None:
