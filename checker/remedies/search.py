@@ -68,6 +68,7 @@ SWING_BAND = 0.01  # ±1 %: the move that ranks candidates
 GRID = (1.02, 1.05, 1.1, 1.25, 1.5, 2.0, 3.0, 5.0, 10.0, 30.0, 100.0)  # factors tried either way
 ROOT_TOLERANCE = 1e-13  # the bracket's width in ln(value) at which the root search stops
 MAX_STEPS = 80
+GOLDEN_STEPS = 40  # a narrow window between grid points: golden-section steps looking for a holding value
 PACK = "pack:preferred-values"
 STOPPED = "remedy search stopped early: its budget is spent (docs/remedies.md, \"Budget\")"
 ADJUSTABLE = frozenset({"value", "vout", "rating", "dropout", "vmax", "imax", "pmax",
@@ -295,9 +296,44 @@ def find_root(margin: MarginAt, value: float) -> tuple[float, int] | None:
                 break
             before = (u, level)
     if best is None:
+        best = _window(margin, value, at)
+    if best is None:
         return None
     (u_fail, f_fail), (u_hold, f_hold), sign = best
     return _narrow(margin, value, u_fail, f_fail, u_hold, f_hold), sign
+
+
+def _window(margin: MarginAt, value: float, at: dict) -> tuple | None:
+    """No factor of the grid holds, yet a narrow window between two of them may (a range narrower
+    than a grid step): a golden-section search for the largest margin between the neighbours of the
+    best grid point, stopping at the first point that holds; then the bracket towards `value`."""
+    points = sorted([(0.0, -math.inf)] + [(sign * math.log(factor), level) for (sign, factor), (level, _) in at.items()])
+    best = max(range(len(points)), key=lambda i: points[i][1])
+    low, high = points[max(best - 1, 0)][0], points[min(best + 1, len(points) - 1)][0]
+    ratio = (math.sqrt(5.0) - 1.0) / 2.0
+    a, b = low + (1 - ratio) * (high - low), low + ratio * (high - low)
+    judged = margin([value * math.exp(a), value * math.exp(b)])
+    for _ in range(GOLDEN_STEPS):
+        if judged is None:
+            return None
+        (fa, ha), (fb, hb) = judged
+        for u, level, holds in ((a, fa, ha), (b, fb, hb)):
+            if holds:
+                sign = 1 if u > 0 else -1
+                outer = [p for p in points if p[0] * sign >= 0 and abs(p[0]) < abs(u)]
+                before = max(outer, key=lambda p: abs(p[0])) if outer else (0.0, -math.inf)
+                return before, (u, level), sign
+        if fa >= fb:
+            high, b, fb = b, a, fa
+            a = low + (1 - ratio) * (high - low)
+            judged = margin([value * math.exp(a)])
+            judged = None if judged is None else [judged[0], (fb, False)]
+        else:
+            low, a, fa = a, b, fb
+            b = low + ratio * (high - low)
+            judged = margin([value * math.exp(b)])
+            judged = None if judged is None else [(fa, False), judged[0]]
+    return None
 
 
 def _narrow(margin: MarginAt, value: float, u_fail: float, f_fail: float, u_hold: float, f_hold: float) -> float:
@@ -427,7 +463,9 @@ class Search:
         chosen = sorted(good, key=lambda c: not c.remedy.all_limits_hold)[:MAX_REMEDIES] or \
             sorted(self.confirmed, key=lambda c: (not c.fixes, len(c.remedy.breaks)))[:MAX_REMEDIES]
         notes = [self.note] if self.note and not chosen else []
-        if chosen and not good:
+        if chosen and not any(c.fixes for c in chosen):
+            notes.append("no single change found fixes this limit in the configured analysis; the closest follow")
+        elif chosen and not good:
             notes.append("no single change fixes this limit without breaking another; the best partial ones follow")
         if self.cut:
             notes.append(STOPPED)

@@ -121,3 +121,22 @@ def test_a_holding_remedy_is_preferred_to_one_that_breaks_another_limit():
     failing = _remedies(LED, limits).findings[0]
     assert [r.name for r in failing.remedies] == ["R1"]  # V1 → 6.8 V breaks source-voltage
     assert failing.remedies[0].all_limits_hold and not failing.remedy_note
+
+
+def test_a_window_narrower_than_the_grid_steps_is_still_found():
+    """10 mA .. 12 mA holds for R1 from 250 Ω to 300 Ω only: 470 Ω / 1.5 and 470 Ω / 2 both miss it."""
+    found = _remedies(LED, "limits:\n" + _limit("led-window", "current(R1) in 10 mA .. 12 mA"))
+    r1 = _by_name(found.findings[0])["R1"]
+    assert r1.root_value == pytest.approx(300.0, rel=1e-9)
+    assert r1.to_value == 270.0 and r1.all_limits_hold
+
+
+def test_monte_carlo_remedies_are_confirmed_by_monte_carlo():
+    """A window of ±4.8 % around 10.5 mA cannot hold under ±5 % on R1: no change fixes it, and none is
+    claimed to; the closest are shown with their negative margins."""
+    circuit = LED.replace("5 V\n", "5 V, tol = 5%\n")
+    found = _remedies(circuit, "limits:\n" + _limit("led-window", "current(R1) in 10 mA .. 11 mA"),
+                      Analysis("monte-carlo", 300, 1))
+    finding = found.findings[0]
+    assert finding.remedies and all(r.margin_after < 0 and not r.all_limits_hold for r in finding.remedies)
+    assert finding.remedy_note.startswith("no single change found fixes this limit")
