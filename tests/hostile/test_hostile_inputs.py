@@ -257,7 +257,7 @@ def test_hostile_worst_case_vertices_past_the_work_cap(repo, capsys):
 def test_hostile_deadline_names_the_stage_and_writes_no_report(repo, capsys, monkeypatch):
     def endless(*args, **kwargs):
         time.sleep(600)
-    monkeypatch.setattr("checker.analysis.run.solve_cases", endless)
+    monkeypatch.setattr("checker.analysis.run.solve_states", endless)
     code, err = check(capsys, "--timeout", "0.2")
     assert code == 2
     assert "longer than --timeout 0.2 s; it was solving the circuits" in err
