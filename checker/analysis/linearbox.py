@@ -29,8 +29,11 @@ from checker.design import Netlist
 from checker.devices.base import GROUND, LinearTwoTerminal, Role
 from checker.solver import Cache
 from checker.solver.assembly import assemble
+from checker.solver.selfcheck import KCL_RELATIVE, KCL_RELATIVE_FLOOR
 
 CHUNK_ENTRIES = 4_000_000  # points x unknowns held at once (32 MB of float64)
+DENSE_RATIO = 1.0  # solve each point's whole matrix when k^3 > this x n^3 (k toleranced conductances)
+DENSE_CHUNK = 256  # points per stacked dense solve
 
 
 class LinearBox:
@@ -68,6 +71,7 @@ class LinearBox:
                     S[a, column] -= 1.0
                 if b != GROUND:
                     S[b, column] += 1.0
+        self._U, self._S = U, S
         solve = (lambda m: lu.solve(m)) if n else (lambda m: m)
         self._y0 = solve(system.rhs.copy()) if n else np.zeros(0)
         self._Z = solve(U) if U.size else np.zeros((n, 0))
@@ -123,6 +127,10 @@ class LinearBox:
                                for start in range(0, len(deviations), chunk)] or [np.zeros((0, n))])
 
     def _solve(self, deviations: np.ndarray) -> np.ndarray:
+        n, k = self.system.size, self._conductance.size
+        if k ** 3 > DENSE_RATIO * n ** 3:  # Woodbury's k x k solve costs more than the whole system's
+            return np.concatenate([self._solve_dense(deviations[start:start + DENSE_CHUNK])
+                                   for start in range(0, len(deviations), DENSE_CHUNK)] or [np.zeros((0, n))])
         values = self.device_values(deviations)
         delta = values - self._nominal
         ds, dg = delta[:, self._source], delta[:, self._conductance]
@@ -139,10 +147,53 @@ class LinearBox:
             t = np.array([_solve_or_nan(K[i], rhs[i]) for i in range(len(K))])
         return y - t @ self._Z.T
 
-    def stacked(self, deviations: np.ndarray) -> Stacked:
-        """The values the limits read at every point."""
+    def _solve_dense(self, deviations: np.ndarray) -> np.ndarray:
+        """Each point's own perturbed matrix, dense, all points in one stacked LAPACK solve (for a
+        small circuit with many toleranced conductances, where that beats Woodbury)."""
+        delta = self.device_values(deviations) - self._nominal
+        ds, dg = delta[:, self._source], delta[:, self._conductance]
+        n = self.system.size
+        matrices = np.broadcast_to(self._dense(), (len(deviations), n, n)).copy()
+        if dg.size:
+            matrices += np.einsum("pj,aj,bj->pab", dg, self._U, self._U, optimize=True)
+        rhs = self.system.rhs + ds @ self._S.T
+        try:
+            return np.linalg.solve(matrices, rhs[:, :, None])[:, :, 0]
+        except np.linalg.LinAlgError:
+            return np.array([_solve_or_nan(matrices[i], rhs[i]) for i in range(len(rhs))])
+
+    def _dense(self) -> np.ndarray:
+        if not hasattr(self, "_dense_matrix"):
+            self._dense_matrix = self.system.matrix.toarray()
+        return self._dense_matrix
+
+    def balanced(self, deviations: np.ndarray, x: np.ndarray) -> np.ndarray:
+        """Per point: whether its solution satisfies its own equations A(d) x = b(d) to the self-check's
+        tolerance (`checker.solver.selfcheck`: KCL_RELATIVE of each row's terms, KCL_RELATIVE_FLOOR of
+        the largest), every point at once; False where the solution is not finite."""
+        delta = self.device_values(deviations) - self._nominal
+        ds, dg = delta[:, self._source], delta[:, self._conductance]
+        matrix, rhs = self.system.matrix, self.system.rhs
+        with np.errstate(all="ignore"):
+            ux = x @ self._U
+            residual = (matrix @ x.T).T + (dg * ux) @ self._U.T - rhs - ds @ self._S.T
+            terms = ((abs(matrix) @ np.abs(x).T).T + (np.abs(dg * ux)) @ np.abs(self._U).T + np.abs(rhs)
+                     + np.abs(ds) @ np.abs(self._S).T)
+            tolerance = KCL_RELATIVE * terms + KCL_RELATIVE_FLOOR * np.max(terms, axis=1, initial=0.0)[:, None]
+            return np.all(np.isfinite(x), axis=1) & np.all(np.abs(residual) <= tolerance, axis=1)
+
+    def checked(self, deviations: np.ndarray) -> tuple[Stacked | None, np.ndarray]:
+        """The values the limits read at the points whose solution passes `balanced`, and which those are."""
         deviations = np.atleast_2d(np.asarray(deviations, float))
         x = self.solve(deviations)
+        ok = self.balanced(deviations, x)
+        rows = np.flatnonzero(ok)
+        return (self.stacked(deviations[rows], x[rows]) if rows.size else None), ok
+
+    def stacked(self, deviations: np.ndarray, x: np.ndarray | None = None) -> Stacked:
+        """The values the limits read at every point (`x`: their solutions, when already solved)."""
+        deviations = np.atleast_2d(np.asarray(deviations, float))
+        x = self.solve(deviations) if x is None else x
         points = len(deviations)
         x_ext = np.concatenate([x, np.zeros((points, 1))], axis=1)  # column -1 is ground, 0 V
         values = self.device_values(deviations)

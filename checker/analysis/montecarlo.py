@@ -15,19 +15,18 @@ from __future__ import annotations
 
 import math
 import zlib
-from dataclasses import dataclass, field, replace
-from typing import Callable, Sequence
+from dataclasses import dataclass, field
+from typing import Callable, Iterator, Sequence
 
 import numpy as np
 
-from checker.analysis.blocks import solve_each
 from checker.analysis.sensitivity import Key, Target, outcomes_at
-from checker.analysis.tolerances import Tolerance, perturbed, toleranced
-from checker.design import Design, Netlist, OperatingPoint
+from checker.analysis.tolerances import toleranced
+from checker.design import Design, OperatingPoint
 from checker.findings import Outcome
-from checker.solver import Cache
 
 PROGRESS_STEPS = 10  # report progress every tenth of the samples
+RUN = 500  # samples solved as one batch per (case, state): whole progress steps, at least this many
 
 
 @dataclass
@@ -42,13 +41,27 @@ class Tally:
         failing = set()
         for case, outcomes in sample.items():
             for key, outcome in outcomes.items():
-                seen = self.worst.setdefault(key, {})
-                if case not in seen or outcome.margin < seen[case].margin:
-                    seen[case] = outcome
+                self.keep(key, case, outcome)
                 if not outcome.holds:
                     failing.add(key)
         for key in failing:
             self.failed[key] = self.failed.get(key, 0) + 1
+
+    def keep(self, key: Key, case: tuple[str, str], outcome: Outcome) -> None:
+        """`outcome` becomes the worst of (key, case) when its margin is lower (an earlier sample wins a tie)."""
+        seen = self.worst.setdefault(key, {})
+        if case not in seen or outcome.margin < seen[case].margin:
+            seen[case] = outcome
+
+
+@dataclass
+class ChunkTally:
+    """What one (case, state) found over a run of samples: per target, its worst outcome there and
+    which of the samples it failed in (a bool array); `Tally` merges these in sample order."""
+
+    case: tuple[str, str]
+    worst: dict[Key, Outcome]
+    fails: dict[Key, np.ndarray]
 
 
 def part_names(design: Design) -> tuple[str, ...]:
@@ -61,18 +74,21 @@ def generator(seed: int, circuit: str) -> np.random.Generator:
     return np.random.default_rng([seed, zlib.crc32(circuit.encode("utf-8"))])
 
 
-def _board(netlists: Sequence[Netlist], tolerances: Sequence[tuple[Tolerance, ...]],
-           draw: dict[str, float]) -> list[Netlist]:
-    return [perturbed(netlist, {t.part: draw[t.part] * t.fraction for t in tols})
-            for netlist, tols in zip(netlists, tolerances)]
+def draws(design: Design, samples: int, seed: int) -> np.ndarray:
+    """(samples, parts) uniform draws on [−1, 1], one row per board, columns in `part_names` order:
+    the same numbers, in the same order, as one draw of every part per sample."""
+    return generator(seed, design.name).uniform(-1.0, 1.0, (samples, len(part_names(design))))
 
 
 def monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Sequence[Target],
-                samples: int, seed: int, report: Callable[[str], None]) -> tuple[Tally, int]:
+                samples: int, seed: int, report: Callable[[str], None],
+                scheduler: str | None = None) -> tuple[Tally, int]:
     """The tally over `samples` boards and the number of samples actually drawn.
 
     A circuit without toleranced parts has one board only: its nominal one (every
     sample would be the same), so it is evaluated once and counted as one sample.
+    Samples are solved in runs (`runs`) of every (case, state) at once (`checker.analysis.samples`);
+    with `scheduler` (a Dask scheduler's address) the runs go to it (`checker.analysis.distributed`).
     """
     netlists = [point.netlist for point in points]  # a case with several stable states once per state
     active = {n.case: [t for t in targets if t.limit.applies_to(n.case)] for n in netlists}
@@ -81,21 +97,40 @@ def monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Seque
     if not names:
         tally.add({state_key(p): outcomes_at(active[p.case], p) for p in points})
         return tally, 1
-    tolerances = [toleranced(netlist) for netlist in netlists]
-    rng = generator(seed, design.name)
+    from checker.analysis.samples import Work, evaluate
+    table = draws(design, samples, seed)
+    jobs = [Work(point, tuple(active[point.case]), table[:, [names.index(t.part) for t in toleranced(point.netlist)]])
+            for point in points]
     step = max(samples // PROGRESS_STEPS, 1)
-    cache = Cache()  # every sample has the nominal topologies: number nets and find patterns once
-    nominal = {state_key(p): outcomes_at(active[p.case], p) for p in points}
-    for sample in range(1, samples + 1):
-        draw = dict(zip(names, rng.uniform(-1.0, 1.0, len(names))))
-        corner = f"sample {sample}"
-        solved = solve_each(_board(netlists, tolerances, draw), cache, points)
-        tally.add({state_key(point): (outcomes_at(active[point.case], replace(found, state=point.state), corner)
-                                      if not isinstance(found, str) else unsolved(nominal[state_key(point)], found, corner))
-                   for point, found in zip(points, solved)})
-        if sample % step == 0 or sample == samples:
-            report(f"{design.name}: {sample} of {samples} samples")
+    runs = list(_runs(samples, step))
+    fails: dict[Key, np.ndarray] = {}
+    reported = 0
+    if scheduler:
+        from checker.analysis.distributed import evaluate_remote
+        results = evaluate_remote(scheduler, jobs, runs)
+    else:
+        results = ([evaluate(job, first, last)] for first, last in runs for job in jobs)
+    run_results = iter(results)
+    for first, last in runs:
+        for _ in jobs:
+            for chunk in next(run_results):
+                for key, outcome in chunk.worst.items():
+                    tally.keep(key, chunk.case, outcome)
+                for key, failing in chunk.fails.items():
+                    seen = fails.setdefault(key, np.zeros(samples, bool))
+                    seen[first:last] |= failing
+        while reported + step <= last or (last == samples and reported < samples):
+            reported = min(reported + step, samples)
+            report(f"{design.name}: {reported} of {samples} samples")
+    tally.failed = {key: int(mask.sum()) for key, mask in fails.items() if mask.any()}
     return tally, samples
+
+
+def _runs(samples: int, step: int) -> Iterator[tuple[int, int]]:
+    """Runs of whole progress steps (0-based, end exclusive), each at least RUN samples long."""
+    size = step * max(1, -(-RUN // step))
+    for first in range(0, samples, size):
+        yield first, min(first + size, samples)
 
 
 def state_key(point: OperatingPoint) -> tuple[str, str]:
