@@ -130,9 +130,9 @@ def stable_near(point: OperatingPoint, guess: OperatingPoint | None, cache: Cach
     x = warm_start(system, point)
     with _watched(netlist):
         found = settled(system, x)
-    if found is None:
+    if not found:
         raise _no_stable_point(system, Search(Equations(system), [Point(x, assess_at(system, x))]))
-    if found is x:
+    if found[0] is x:
         return point
     near = warm_start(system, guess or point)
     best = min(found, key=lambda y: float(np.linalg.norm(y[:system.n_nodes] - near[:system.n_nodes])))

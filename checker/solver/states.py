@@ -205,17 +205,16 @@ def assess_at(system: System, x: np.ndarray) -> Stability:
     return assess(system, equations.linearise(x)[1], x, lambda y: equations.linearise(y)[0])
 
 
-def settled(system: System, x: np.ndarray) -> list[np.ndarray] | np.ndarray | None:
-    """`x` itself when it is a stable point; otherwise the stable points reached by settling from
-    both sides of it along its growing mode (None when neither side reaches one)."""
+def settled(system: System, x: np.ndarray) -> list[np.ndarray]:
+    """The stable points reached from `x`: `[x]` itself when it is stable, otherwise those reached by
+    settling from both sides of it along its growing mode (none when neither side reaches one)."""
     stability = assess_at(system, x)
     if stability.stable:
-        return x
+        return [x]
     found = Search(Equations(system))
     for start in _off_unstable([Point(x, stability)], system.n_nodes):
         _settle_from(found, start)
-    stable = [point.x for point in found.stable]
-    return stable or None
+    return [point.x for point in found.stable]
 
 
 def _settle_from(found: Search, start: np.ndarray) -> None:
