@@ -44,6 +44,7 @@ from checker.solver.selfcheck import KCL_RELATIVE, KCL_RELATIVE_FLOOR
 from checker.solver.stability import FOLD, GROWTH, branch_flips
 from checker.solver.states import may_have_several
 
+DENSE_SIZE = 400  # unknowns: above this a sample's dense Jacobian costs more than the ordinary sparse solve
 SCREEN_MARGIN = 0.5  # the stability screen's growth bound is this share of `assess`'s
 FOLD_MARGIN = 2.0  # ... and its fold bound this multiple of it
 SHIFT = 0.618  # the shift of the pencil's eigenvalue problem, of the largest conductance at a net
@@ -93,7 +94,7 @@ class Tiled:
         """The tiled system of a nonlinear case whose toleranced values move device arrays as `move` does
         (checked at +tol against the assembled perturbed netlist); None otherwise."""
         system = assemble(netlist, cache.topology(netlist))
-        if not system.nonlinear_devices or not all(_movable(system, t) for t in tolerances):
+        if not system.nonlinear_devices or system.size > DENSE_SIZE or not all(_movable(system, t) for t in tolerances):
             return None
         probe = cls(system, tolerances, 1)
         fractions = np.array([[t.fraction for t in tolerances]])

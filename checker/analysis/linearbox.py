@@ -21,6 +21,7 @@ from __future__ import annotations
 from typing import Sequence
 
 import numpy as np
+import scipy.sparse as sp
 from scipy.sparse.linalg import splu
 
 from checker.analysis.stacked import LazyMap, PartArrays, PartValues, Stacked
@@ -33,7 +34,7 @@ from checker.solver.selfcheck import KCL_RELATIVE, KCL_RELATIVE_FLOOR
 
 CHUNK_ENTRIES = 4_000_000  # points x unknowns held at once (32 MB of float64)
 DENSE_RATIO = 1.0  # solve each point's whole matrix when k^3 > this x n^3 (k toleranced conductances)
-DENSE_CHUNK = 256  # points per stacked dense solve
+DENSE_ENTRIES = 4_000_000  # points x n x n held at once by the stacked dense solve (32 MB)
 
 
 class LinearBox:
@@ -129,8 +130,9 @@ class LinearBox:
     def _solve(self, deviations: np.ndarray) -> np.ndarray:
         n, k = self.system.size, self._conductance.size
         if k ** 3 > DENSE_RATIO * n ** 3:  # Woodbury's k x k solve costs more than the whole system's
-            return np.concatenate([self._solve_dense(deviations[start:start + DENSE_CHUNK])
-                                   for start in range(0, len(deviations), DENSE_CHUNK)] or [np.zeros((0, n))])
+            chunk = max(1, DENSE_ENTRIES // (n * n))
+            return np.concatenate([self._solve_dense(deviations[start:start + chunk])
+                                   for start in range(0, len(deviations), chunk)] or [np.zeros((0, n))])
         values = self.device_values(deviations)
         delta = values - self._nominal
         ds, dg = delta[:, self._source], delta[:, self._conductance]
@@ -154,13 +156,26 @@ class LinearBox:
         ds, dg = delta[:, self._source], delta[:, self._conductance]
         n = self.system.size
         matrices = np.broadcast_to(self._dense(), (len(deviations), n, n)).copy()
-        if dg.size:
-            matrices += np.einsum("pj,aj,bj->pab", dg, self._U, self._U, optimize=True)
+        if dg.size:  # each conductance's four entries, u uᵀ per column of U, as one sparse product
+            positions, stamps = self._stamps()
+            matrices.reshape(len(deviations), n * n)[:, positions] += (stamps @ dg.T).T
         rhs = self.system.rhs + ds @ self._S.T
         try:
             return np.linalg.solve(matrices, rhs[:, :, None])[:, :, 0]
         except np.linalg.LinAlgError:
             return np.array([_solve_or_nan(matrices[i], rhs[i]) for i in range(len(rhs))])
+
+    def _stamps(self) -> tuple[np.ndarray, sp.csr_matrix]:
+        """The flat positions in the n x n matrix that toleranced conductances touch, and the sparse
+        (positions, k) matrix whose column j is u_j u_jᵀ there (u_j the incidence of conductance j)."""
+        if not hasattr(self, "_stamp_matrix"):
+            n = self.system.size
+            entries = [(a * n + b, j, self._U[a, j] * self._U[b, j]) for j in range(self._U.shape[1])
+                       for a in np.flatnonzero(self._U[:, j]) for b in np.flatnonzero(self._U[:, j])]
+            flat, cols, values = (np.array(c) for c in zip(*entries)) if entries else (np.zeros(0, int),) * 3
+            positions, rows = np.unique(flat, return_inverse=True)
+            self._stamp_matrix = positions, sp.csr_matrix((values, (rows, cols)), shape=(positions.size, self._U.shape[1]))
+        return self._stamp_matrix
 
     def _dense(self) -> np.ndarray:
         if not hasattr(self, "_dense_matrix"):

@@ -26,7 +26,7 @@ from checker.design import Design, OperatingPoint
 from checker.findings import Outcome
 
 PROGRESS_STEPS = 10  # report progress every tenth of the samples
-RUN = 500  # samples solved as one batch per (case, state): whole progress steps, at least this many
+RUN = 1000  # samples solved as one batch per (case, state): whole progress steps, at least this many
 
 
 @dataclass

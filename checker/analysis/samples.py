@@ -34,6 +34,9 @@ from checker.findings import Outcome
 from checker.solver import Cache
 
 
+BATCH_ENTRIES = 20_000_000  # samples x unknowns² of one batch's dense blocks (160 MB of float64)
+
+
 class Work:
     """One (case, state) of a circuit with its targets and every sample's draws of its toleranced
     parts (samples, k), ready to be evaluated at any run of samples; keeps its solvers between runs
@@ -69,7 +72,26 @@ class Work:
 
 
 def evaluate(work: Work, first: int, last: int) -> ChunkTally:
-    """Samples first+1 .. last (1-based) of one (case, state)."""
+    """Samples first+1 .. last (1-based) of one (case, state), in batches whose dense blocks stay
+    within BATCH_ENTRIES numbers."""
+    size = len(work.point.nets) + len(work.point.parts)  # bounds the unknowns (nets and branches)
+    per = last - first if work.box() is not None else max(1, BATCH_ENTRIES // (size * size))  # LinearBox chunks itself
+    tallies = [_evaluate(work, start, min(start + per, last)) for start in range(first, last, per)]
+    return tallies[0] if len(tallies) == 1 else merged(tallies)
+
+
+def merged(tallies: Sequence[ChunkTally]) -> ChunkTally:
+    """Consecutive runs of one (case, state) as one: the first lowest margin, the fails in order."""
+    worst: dict[Key, Outcome] = {}
+    for tally in tallies:
+        for key, outcome in tally.worst.items():
+            if key not in worst or outcome.margin < worst[key].margin:
+                worst[key] = outcome
+    keys = dict.fromkeys(key for tally in tallies for key in tally.fails)
+    return ChunkTally(tallies[0].case, worst, {key: np.concatenate([t.fails[key] for t in tallies]) for key in keys})
+
+
+def _evaluate(work: Work, first: int, last: int) -> ChunkTally:
     point, count = work.point, last - first
     nominal = work.nominal()
     corner = [f"sample {first + 1 + i}" for i in range(count)]
