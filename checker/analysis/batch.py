@@ -26,6 +26,7 @@ message when there is no operating point).
 
 from __future__ import annotations
 
+import copy as copy_module
 import dataclasses
 from typing import Sequence
 
@@ -65,18 +66,11 @@ class Solved:
 class Tiled:
     """`count` copies of one case's system, unknowns block-major, with movable toleranced values."""
 
-    def __init__(self, system: System, tolerances: Sequence[Tolerance], count: int):
+    def __init__(self, system: System, tolerances: Sequence[Tolerance], count: int, built: bool = False):
         self.system, self.tolerances, self.count = system, tuple(tolerances), count
         self.size, self.nodes = system.size, system.n_nodes
         offsets = np.arange(count) * self.size
-        self.devices = []
-        for device in system.devices:
-            nodes = np.where(device.nodes[None] < 0, GROUND, device.nodes[None] + offsets[:, None, None])
-            copy = type(device)(device.parts * count, nodes.reshape(-1, device.nodes.shape[1]), 0, device.ambient)
-            branch = getattr(device, "branch", None)
-            if branch is not None:
-                copy.branch = np.where(branch[None] < 0, GROUND, branch[None] + offsets[:, None]).ravel()
-            self.devices.append(copy)
+        self.devices = [(_built if built else _tiled)(device, count, offsets) for device in system.devices]
         topology = system.topology
         positions = {part.name: m for m, part in enumerate(system.netlist.parts)}
         self._where = {name: (int(topology.group_of[m]), int(topology.row_of[m])) for name, m in positions.items()}
@@ -96,6 +90,9 @@ class Tiled:
         system = assemble(netlist, cache.topology(netlist))
         if not system.nonlinear_devices or system.size > DENSE_SIZE or not all(_movable(system, t) for t in tolerances):
             return None
+        if not all(_same(vars(a), vars(b)) for a, b in zip(cls(system, (), 2).devices,
+                                                           cls(system, (), 2, built=True).devices)):
+            return None  # some device keeps state that is not one entry per part: build it, part by part
         probe = cls(system, tolerances, 1)
         fractions = np.array([[t.fraction for t in tolerances]])
         probe.move(fractions)
@@ -283,6 +280,46 @@ class Tiled:
 
         return Stacked(system.netlist.case, system.netlist.ambient, points, LazyMap(net, set(system.nets).__contains__),
                        LazyMap(result, self._where.__contains__), LazyMap(part, declared.__contains__))
+
+
+def _built(device, count: int, offsets: np.ndarray):
+    """`device` for `count` blocks, by its own constructor (the reference `_tiled` is checked against)."""
+    nodes = np.where(device.nodes[None] < 0, GROUND, device.nodes[None] + offsets[:, None, None])
+    copy = type(device)(device.parts * count, nodes.reshape(-1, device.nodes.shape[1]), 0, device.ambient)
+    return _numbered(copy, device, offsets)
+
+
+def _tiled(device, count: int, offsets: np.ndarray):
+    """`device` for `count` blocks without its constructor: every per-part array repeated per block."""
+    copy = copy_module.copy(device)
+    parts = len(device.parts)
+    for name, value in vars(device).items():
+        if name != "parts":
+            setattr(copy, name, _repeat(value, parts, count))
+    copy.parts = device.parts * count
+    copy.n_branches = device.n_branches * count
+    copy.nodes = np.where(device.nodes[None] < 0, GROUND, device.nodes[None] + offsets[:, None, None]).reshape(
+        -1, device.nodes.shape[1])
+    return _numbered(copy, device, offsets)
+
+
+def _numbered(copy, device, offsets: np.ndarray):
+    """Branch unknowns renumbered block-major, as the nets are."""
+    branch = getattr(device, "branch", None)
+    if branch is not None:
+        copy.branch = np.where(branch[None] < 0, GROUND, branch[None] + offsets[:, None]).ravel()
+    return copy
+
+
+def _repeat(value, parts: int, count: int):
+    if isinstance(value, np.ndarray):
+        return np.tile(value, (count,) + (1,) * (value.ndim - 1)) if value.ndim and len(value) == parts else value
+    if isinstance(value, (list, tuple)) and not isinstance(value, str):
+        return type(value)(_repeat(v, parts, count) for v in value)
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return dataclasses.replace(value, **{f.name: _repeat(getattr(value, f.name), parts, count)
+                                             for f in dataclasses.fields(value) if f.init})
+    return value
 
 
 def start_of(tiled: Tiled, point: OperatingPoint) -> np.ndarray:
