@@ -189,6 +189,7 @@ class Analysis:
     samples: int | None = None
     seed: int | None = None
     vertex_values: int | None = None
+    scheduler: str | None = None  # monte-carlo: where the samples run (a Dask scheduler's address); None: here
 
 
 @dataclass(frozen=True)

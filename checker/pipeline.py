@@ -56,7 +56,7 @@ def load_limit_files(config: Config) -> list[LimitFile]:
 def analysis_of(config: Config) -> Analysis:
     """The configured tolerance analysis; samples and seed only matter for Monte Carlo."""
     if config.tolerances == "monte-carlo":
-        return Analysis(config.tolerances, config.samples, config.seed)
+        return Analysis(config.tolerances, config.samples, config.seed, scheduler=config.scheduler)
     if config.tolerances == "worst-case":
         return Analysis(config.tolerances, vertex_values=config.vertex_values)
     return Analysis(config.tolerances)

@@ -98,7 +98,8 @@ def _local_drivers(points: Sequence[OperatingPoint], targets: Sequence[Target],
 
 def _monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Sequence[Target],
                  analysis: Analysis, report: Callable[[str], None]) -> dict[Key, Result]:
-    tally, drawn = monte_carlo(design, points, targets, analysis.samples or 1, analysis.seed or 0, report)
+    tally, drawn = monte_carlo(design, points, targets, analysis.samples or 1, analysis.seed or 0, report,
+                               analysis.scheduler)
     order = [state_key(point) for point in points]
     outcomes = {key: outcomes_in_order(tally, key, order) for key in tally.worst}
     worst_case_of = {}

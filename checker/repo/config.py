@@ -20,7 +20,7 @@ from checker.yamlsource import (
 )
 
 TOP_KEYS = ("circuits", "limits", "analysis", "report")
-ANALYSIS_KEYS = ("tolerances", "samples", "seed", "vertex_values")
+ANALYSIS_KEYS = ("tolerances", "samples", "seed", "vertex_values", "scheduler")
 MAX_VERTEX_VALUES = 20  # worst-case: 1,048,576 vertices per case, the most a configuration may ask for
 TOLERANCE_MODES = ("nominal", "worst-case", "monte-carlo")
 CONFIG_NAMES = ("nodegate.yaml", "nodegate.yml")  # looked for in this order
@@ -52,6 +52,7 @@ class Config:
     samples: int = 2000
     seed: int = 1
     vertex_values: int | None = None  # None: the analysis's own default (docs/analysis.md)
+    scheduler: str | None = None  # monte-carlo: a Dask distributed scheduler's address (docs/analysis.md)
     analysis_at: dict[str, Location] = field(default_factory=dict, compare=False)  # `analysis` key -> its value
     reports: dict[str, Path] = field(default_factory=dict)  # format (md, html, ...) -> path
 
@@ -262,6 +263,8 @@ def _analysis(value: object, data: LocatedDict) -> dict:
         if mode not in TOLERANCE_MODES:
             raise ConfigError(f"`tolerances` must be one of {', '.join(TOLERANCE_MODES)}", mode.location)
         result["tolerances"] = str(mode)
+    if "scheduler" in section:
+        result["scheduler"] = str(expect_text(section["scheduler"], "`scheduler`", section.value_location("scheduler")))
     bounds = (("samples", 1, MAX_SAMPLES), ("seed", 0, 2**32 - 1), ("vertex_values", 0, MAX_VERTEX_VALUES))
     for key, low, high in bounds:
         if key in section:
