@@ -103,7 +103,6 @@ def monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Seque
             for point in points]
     step = max(samples // PROGRESS_STEPS, 1)
     runs = list(_runs(samples, step))
-    fails: dict[Key, np.ndarray] = {}
     reported = 0
     if scheduler:
         from checker.analysis.distributed import evaluate_remote
@@ -112,17 +111,19 @@ def monte_carlo(design: Design, points: Sequence[OperatingPoint], targets: Seque
         results = ([evaluate(job, first, last)] for first, last in runs for job in jobs)
     run_results = iter(results)
     for first, last in runs:
+        fails: dict[Key, np.ndarray] = {}  # this run's samples failing in any case
         for _ in jobs:
             for chunk in next(run_results):
                 for key, outcome in chunk.worst.items():
                     tally.keep(key, chunk.case, outcome)
                 for key, failing in chunk.fails.items():
-                    seen = fails.setdefault(key, np.zeros(samples, bool))
-                    seen[first:last] |= failing
+                    fails[key] = fails[key] | failing if key in fails else failing
+        for key, failing in fails.items():
+            if failing.any():
+                tally.failed[key] = tally.failed.get(key, 0) + int(failing.sum())
         while reported + step <= last or (last == samples and reported < samples):
             reported = min(reported + step, samples)
             report(f"{design.name}: {reported} of {samples} samples")
-    tally.failed = {key: int(mask.sum()) for key, mask in fails.items() if mask.any()}
     return tally, samples
 
 

@@ -170,3 +170,13 @@ def test_runs_on_a_dask_cluster_with_the_local_results():
         remote = example(Analysis("monte-carlo", 30, 2, scheduler=cluster.scheduler_address))
     assert [(f.limit.id, f.item, f.status, f.fail_fraction, f.outcomes) for f in remote.findings] == \
         [(f.limit.id, f.item, f.status, f.fail_fraction, f.outcomes) for f in local.findings]
+
+
+def test_runs_of_samples_merge_to_the_result_of_one_run(monkeypatch):
+    checks = ("voltage(mid) >= 1.3 V", "voltage(mid) <= 1.7 V")
+    whole = run(CIRCUIT_TWO_CASES, checks, Analysis("monte-carlo", 60, 4))
+    import checker.analysis.montecarlo
+    monkeypatch.setattr(checker.analysis.montecarlo, "RUN", 7)  # runs of 12 samples (whole tenths)
+    pieces = run(CIRCUIT_TWO_CASES, checks, Analysis("monte-carlo", 60, 4))
+    assert any(0 < f.fail_fraction < 1 for f in whole.findings)
+    assert [(f.fail_fraction, f.outcomes) for f in pieces.findings] == [(f.fail_fraction, f.outcomes) for f in whole.findings]
