@@ -17,7 +17,8 @@ import numpy as np
 
 from checker.analysis.linearbox import LinearBox
 from checker.analysis.blocks import JointSolver, solve_each
-from checker.analysis.stacked import PointView, Stacked, stack_points
+from checker.analysis.batch import Tiled, start_of
+from checker.analysis.stacked import PointView, Stacked, joined, stack_points
 from checker.analysis.tolerances import Tolerance, perturbed
 from checker.design import Netlist, OperatingPoint
 from checker.errors import NodegateError
@@ -27,6 +28,7 @@ from checker.solver import Cache
 
 Solved = OperatingPoint | str  # an operating point, or why there is none
 BLOCKS = 64  # variants of a nonlinear case solved as one joint circuit (checker.analysis.blocks)
+BATCH_ENTRIES = 20_000_000  # points x unknowns² of one batched Newton-Raphson's dense blocks (160 MB)
 
 
 @dataclass
@@ -74,6 +76,7 @@ class BoxPoints:
         self.box = LinearBox.of(netlist, self.tolerances, cache) if self.tolerances else None
         self.joint = JointSolver(netlist, nominal, cache)
         self.solves = 0
+        self._tilings: dict[int, Tiled | None] = {}
 
     @property
     def linear(self) -> bool:
@@ -85,20 +88,49 @@ class BoxPoints:
     def evaluate(self, deviations: np.ndarray, fallback: bool = True) -> Batch:
         """The values at every row of `deviations` (points, values). Without `fallback`, a nonlinear
         point Newton-Raphson cannot reach from nominal counts as unsolved at once (for a search's trial
-        points: the search confirms its result with the full solver)."""
+        points: the search confirms its result with the full solver).
+
+        A linear case: `LinearBox`, every point checked against its own equations; a nonlinear one:
+        Newton-Raphson over the whole batch (`checker.analysis.batch`), with its self-check and
+        stability screen. A point either leaves is solved with the others it leaves as one joint
+        circuit (`JointSolver`), one netlist at a time where that fails."""
         deviations = np.atleast_2d(deviations)
         self.solves += len(deviations)
+        pieces: list[tuple[np.ndarray, Stacked]] = []
+        ok = np.zeros(len(deviations), bool)
         if self.box is not None:
-            return Batch(self.box.stacked(deviations), np.ones(len(deviations), bool), {})
-        netlists = [self.netlist_at(row) for row in deviations]
+            values, ok = self.box.checked(deviations)
+            if values is not None:
+                pieces.append((np.flatnonzero(ok), values))
+        elif self.tolerances:
+            per = max(1, BATCH_ENTRIES // max(len(self.nominal.nets) + len(self.nominal.parts), 1) ** 2)
+            for start in range(0, len(deviations), per):
+                part = deviations[start:start + per]
+                tiled = self._tiled(len(part))
+                if tiled is None:
+                    break
+                solved = tiled.solve(part, start_of(tiled, self.nominal))
+                rows = np.flatnonzero(solved.ok)
+                if rows.size:
+                    pieces.append((start + rows, tiled.stacked(solved, part, rows)))
+                    ok[start + rows] = True
+        left = np.flatnonzero(~ok)
+        netlists = [self.netlist_at(deviations[i]) for i in left]
         solved = []
         for start in range(0, len(netlists), BLOCKS):
             solved += self.joint.solve(netlists[start:start + BLOCKS], fallback)
-        ok = np.array([not isinstance(s, str) for s in solved], bool)
-        errors = {i: s for i, s in enumerate(solved) if isinstance(s, str)}
-        good = [(s, n) for s, n in zip(solved, netlists) if not isinstance(s, str)]
-        values = stack_points([s for s, _ in good], [n for _, n in good]) if good else None
-        return Batch(values, ok, errors)
+        errors = {int(i): s for i, s in zip(left, solved) if isinstance(s, str)}
+        good = [(int(i), s, n) for i, s, n in zip(left, solved, netlists) if not isinstance(s, str)]
+        if good:
+            pieces.append((np.array([i for i, _, _ in good]), stack_points([s for _, s, _ in good],
+                                                                           [n for _, _, n in good])))
+            ok[[i for i, _, _ in good]] = True
+        return Batch(joined(pieces) if pieces else None, ok, errors)
+
+    def _tiled(self, count: int) -> Tiled | None:
+        if count not in self._tilings:
+            self._tilings[count] = Tiled.of(self.netlist, self.tolerances, self.cache, count)
+        return self._tilings[count]
 
     def solve(self, deviations: np.ndarray) -> list[Solved]:
         """The ordinary solver at every row (what confirms a reported point), started at nominal."""

@@ -103,6 +103,39 @@ def stack_points(solved: Sequence[Located], netlists: Sequence[Netlist]) -> Stac
                    LazyMap(result, position.__contains__), LazyMap(part, position.__contains__))
 
 
+def joined(pieces: Sequence[tuple[np.ndarray, Stacked]]) -> Stacked:
+    """Stacks of one case at disjoint sets of points (the point numbers of each, in order) as one
+    stack over all of them in the order of their numbers."""
+    if len(pieces) == 1:
+        return pieces[0][1]
+    order = np.argsort(np.concatenate([rows for rows, _ in pieces]), kind="stable")
+    stacks = [stack for _, stack in pieces]
+    first = stacks[0]
+    size = sum(stack.size for stack in stacks)
+
+    def cat(arrays) -> np.ndarray:
+        return np.concatenate([np.broadcast_to(np.asarray(a), (s.size,)) for a, s in zip(arrays, stacks)])[order]
+
+    def net(name: str) -> np.ndarray:
+        return cat([stack.nets[name] for stack in stacks])
+
+    def result(name: str) -> PartArrays:
+        found = [stack.results[name] for stack in stacks]
+        pins = {pin: cat([r.pins[pin] for r in found]) for pin in found[0].pins}
+        if found[0].voltage is None:
+            return PartArrays(cat([r.power for r in found]), pins)
+        return PartArrays(cat([r.power for r in found]), pins, cat([r.voltage for r in found]),
+                          cat([r.current for r in found]))
+
+    def part(name: str) -> PartValues:
+        found = [stack.parts[name] for stack in stacks]
+        value = None if found[0].value is None else cat([p.value for p in found])
+        return PartValues(value, {key: cat([p.props[key] for p in found]) for key in found[0].props})
+
+    return Stacked(first.case, first.ambient, size, LazyMap(net, first.nets._known),
+                   LazyMap(result, first.results._known), LazyMap(part, first.parts._known))
+
+
 def _runs(solved: Sequence[Located]) -> list[tuple[OperatingPoint, np.ndarray]]:
     """Consecutive variants from the same operating point, with their block numbers."""
     runs: list[tuple[OperatingPoint, list[int]]] = []

@@ -16,6 +16,7 @@ import pytest
 from analysis_circuits import TODAY, divider_text, run
 
 import checker.analysis.blocks
+import checker.analysis.boxpoints
 import checker.analysis.samples
 from checker.analysis import analyse
 from checker.analysis.batch import Tiled, stable_screen, start_of
@@ -180,3 +181,11 @@ def test_runs_of_samples_merge_to_the_result_of_one_run(monkeypatch):
     pieces = run(CIRCUIT_TWO_CASES, checks, Analysis("monte-carlo", 60, 4))
     assert any(0 < f.fail_fraction < 1 for f in whole.findings)
     assert [(f.fail_fraction, f.outcomes) for f in pieces.findings] == [(f.fail_fraction, f.outcomes) for f in whole.findings]
+
+
+def test_worst_case_batched_equals_joint_circuits(monkeypatch):
+    batched = example(Analysis("worst-case"))
+    monkeypatch.setattr(checker.analysis.boxpoints.Tiled, "of", classmethod(lambda cls, *args: None))
+    joint = example(Analysis("worst-case"))  # every point of the box solved as before: blocks of one joint circuit
+    assert len(batched.findings) > 20
+    assert_same(batched, joint)
