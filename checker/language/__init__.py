@@ -8,6 +8,8 @@ Every input problem is a `checker.errors.NodegateError` with a Location.
 
 from __future__ import annotations
 
+import contextlib
+import gc
 from pathlib import Path
 
 from checker.design import Design
@@ -45,4 +47,20 @@ def _existing(path: str) -> Path | None:
 def _design(source: Source, real: Path | None, root: str | Path | None) -> Design:
     if root is None:
         root = Path(source.path).parent
-    return elaborate(Loader(Path(root)).top(source, real), source)
+    with _collector_paused():
+        return elaborate(Loader(Path(root)).top(source, real), source)
+
+
+@contextlib.contextmanager
+def _collector_paused():
+    """Reading a file makes a few small objects per line, none in a reference cycle; CPython's
+    cycle collector would walk all of them again at each of its full passes, which took a third
+    of the time of a large file. Reference counting still frees everything as before."""
+    if not gc.isenabled():
+        yield
+        return
+    gc.disable()
+    try:
+        yield
+    finally:
+        gc.enable()

@@ -7,22 +7,24 @@ appear in any order. A block instance `DIV (top: vbat, ...)` becomes parts
 
 from __future__ import annotations
 
+import math
 from collections import ChainMap
 
 from checker.design import Design, Part
-from checker.errors import DesignError, Location, NodegateError, UnitError
-from checker.kinds import KINDS, Kind, check_range
+from checker.errors import DesignError, NodegateError, UnitError
+from checker.kinds import KINDS, VALUE_UNITS, Kind, check_range
 from checker.language.cases import netlists
 from checker.language.expressions import Scope, dim_text, evaluate
-from checker.language.parts import build_part, check_form, ordered_nets, unknown_kind
+from checker.language.parts import build_part, check_complete, check_form, ordered_nets, unknown_kind
+from checker.language.quick import QuickPart, Spots
 from checker.language.source import Source
 from checker.language.syntax import (
-    Block, Case, Circuit, Ground, Let, Name, PartStatement, Statement, declared,
+    RESERVED, Block, Case, Circuit, Ground, Let, Name, PartStatement, Statement, declared,
 )
-from checker.units import Quantity
+from checker.units import SPELLINGS, Quantity, quantity
 
 MAX_BLOCK_DEPTH = 16  # blocks inside blocks
-MAX_PARTS = 100_000  # after every block is expanded
+MAX_PARTS = 2_000_000  # after every block is expanded (docs/language.md, "Limits")
 
 
 def elaborate(found: list[Statement], top: Source) -> Design:
@@ -31,7 +33,7 @@ def elaborate(found: list[Statement], top: Source) -> Design:
     lets = _lets([s for s in found if isinstance(s, Let)], {})
     blocks = _blocks([s for s in found if isinstance(s, Block)])
     expander = _Expander(blocks, ground.net.text, lets)
-    parts = expander.expand([s for s in found if isinstance(s, PartStatement)], "", {}, lets, ())
+    parts = expander.expand([s for s in found if isinstance(s, (PartStatement, QuickPart))], "", {}, lets, ())
     cases = [s for s in found if isinstance(s, Case)]
     return Design(
         name=circuit.name.text, title=circuit.title or circuit.name.text, path=top.path,
@@ -111,17 +113,30 @@ class _Expander:
         self.blocks, self.ground, self.lets = blocks, ground, lets
         self.count = 0
         self.instances: set[str] = set()
+        self.quantities: dict[tuple, Quantity | None] = {}  # the quick path's literals, each read once
+        self.strings: dict[str, str] = {}  # one string per net name, however often it is written
+        self.sizes: dict[str, int] = {}  # parts per instance of each block, once expanded
 
-    def expand(self, found: list[PartStatement], prefix: str, ports: dict[str, str],
+    def expand(self, found: list[PartStatement | QuickPart], prefix: str, ports: dict[str, str],
                scope: Scope, stack: tuple[str, ...]) -> list[Part]:
-        names: dict[str, Location] = {}
+        names: dict[str, int] = {}  # part name -> the line declaring it
         parts: list[Part] = []
         for statement in found:
+            if type(statement) is QuickPart:
+                part = self.quick(statement, names, scope)
+                if part is not None:
+                    names[part.name] = statement.line
+                    parts.append(part)
+                    self.count += 1
+                    if self.count > MAX_PARTS:
+                        self.counted(statement.statement())
+                    continue
+                statement = statement.statement()  # the general path below says what is wrong
             name = declared(statement.name, "part")
             if name in names:
-                raise DesignError(f"`{name}` is already declared at line {names[name].line}",
+                raise DesignError(f"`{name}` is already declared at line {names[name]}",
                                   statement.name.location)
-            names[name] = statement.name.location
+            names[name] = statement.name.location.line
             if statement.kind.text in self.blocks:
                 parts.extend(self.instance(statement, prefix, ports, scope, stack))
             elif statement.kind.text in KINDS:
@@ -135,6 +150,85 @@ class _Expander:
             else:
                 raise unknown_kind(statement.kind, self.blocks)
         return parts
+
+    def quick(self, line: QuickPart, names: dict[str, int], scope: Scope) -> Part | None:
+        """The Part of a top-level quick line, built as `build_part` builds it; None for anything
+        unusual or wrong, which the general path then handles (and reports) itself."""
+        kind = KINDS.get(line.kind)
+        if (kind is None or not kind.two_terminal or line.kind in self.blocks or line.name in RESERVED
+                or line.name in names or line.net_from == line.net_to):
+            return None
+        nets = []
+        for net in (line.net_from, line.net_to):
+            if net != self.ground and net in RESERVED:
+                return None
+            nets.append(self.strings.setdefault(net, net))
+        value = unit = None
+        keys, columns = ["from", "to"], [line.columns[2], line.columns[3]]
+        flags, tags, props, at = frozenset(), set(), {}, {}
+        for index, item in enumerate(line.parsed_items()):
+            key, word = item.group("key", "vref")
+            if key is None:
+                if word is not None and word in kind.flags:
+                    if flags:
+                        return None
+                    flags = frozenset((word,))
+                    continue
+                if index or not kind.values:
+                    return None
+                number = self.literal(item, "v", scope)
+                if number is None or number.dim not in kind.values or number.absolute:
+                    return None
+                value, unit = number.value, VALUE_UNITS[number.dim]
+            elif key == "tag":
+                if word is None or item.group("anum", "aref") != (None, None):
+                    return None
+                tags.add(word)
+                continue
+            else:
+                spec = kind.prop(key)
+                number = self.literal(item, "v", scope)
+                if (key in props or spec is None or number is None or number.dim != spec.dim
+                        or (number.absolute and not spec.temperature)):
+                    return None
+                if (item.group("anum", "aref") == (None, None)) != (spec.at is None):
+                    return None
+                if spec.at is not None:
+                    condition = self.literal(item, "a", scope)
+                    if condition is None or condition.dim != spec.at or condition.absolute:
+                        return None
+                    at[key] = condition.value
+                if spec.allowed is not None and not spec.allowed(number.value):
+                    return None
+                props[key] = number.value
+            keys.append("value" if key is None else key)
+            columns.append(item.start("vref" if word is not None else "vneg" if item.group("vneg") else "vnum") + 1)
+        location = line.at(line.columns[1])
+        part = Part(line.name, kind.name, (("from", nets[0]), ("to", nets[1])), value, unit, flags, props, at,
+                    frozenset(tags), location, Spots(location, self.strings.setdefault(tuple(keys), tuple(keys)),
+                                                      tuple(columns)))
+        try:
+            check_complete(kind, part, location)
+        except NodegateError:
+            return None
+        return part
+
+    def literal(self, item, tag: str, scope: Scope) -> Quantity | None:
+        """The value of a quick item's quantity or let name, as `evaluate` gives it; None if that fails."""
+        name = item.group(tag + "ref")
+        if name is not None:
+            found = scope.get(name)
+            return found if found is not None and math.isfinite(found.value) else None
+        key = item.group(tag + "neg", tag + "num", tag + "unit")
+        if key not in self.quantities:
+            negative, number, symbol = key
+            try:
+                found = quantity(-float(number) if negative else float(number),
+                                 "" if symbol is None else symbol.translate(SPELLINGS))
+            except (ValueError, OverflowError):
+                found = None
+            self.quantities[key] = found if found is not None and math.isfinite(found.value) else None
+        return self.quantities[key]
 
     def nets(self, names: tuple[Name, ...], prefix: str, ports: dict[str, str]) -> tuple[str, ...]:
         """Net names as seen from the top: a port's outer net, the global ground, or prefixed."""
@@ -158,6 +252,8 @@ class _Expander:
         if statement.two_terminal:
             raise DesignError(f"a block instance is written `{block.name.text} NAME (PORT: NET, ...)`",
                               statement.kind.location)
+        if self.count + self.size(block, stack) > MAX_PARTS:  # before any work: blocks multiply parts
+            raise DesignError(f"more than {MAX_PARTS} parts once blocks are expanded", statement.name.location)
         port_names = tuple(p.text for p in block.ports)
         outer = self.nets(ordered_nets(statement, port_names, f"block `{block.name.text}`"), prefix, ports)
         given = self.parameters(statement, block, scope)
@@ -171,6 +267,21 @@ class _Expander:
         except NodegateError as error:
             raise type(error)(error.message, error.location,
                               (*error.notes, f"in `{path}` at {statement.name.location}")) from None
+
+    def size(self, block: Block, stack: tuple[str, ...]) -> int:
+        """The parts an instance of `block` holds once expanded; a cycle or a nesting too deep
+        adds nothing here, as expanding reports it."""
+        if block.name.text in self.sizes:
+            return self.sizes[block.name.text]
+        if block.name.text in stack or len(stack) > MAX_BLOCK_DEPTH:
+            return 0
+        total = 0
+        for statement in block.body:
+            if isinstance(statement, PartStatement):
+                inner = self.blocks.get(statement.kind.text)
+                total += 1 if inner is None else self.size(inner, (*stack, block.name.text))
+        self.sizes[block.name.text] = total
+        return total
 
     def parameters(self, statement: PartStatement, block: Block, scope: Scope) -> dict:
         """The instance's `KEY = VALUE` items, which set the block's let values."""

@@ -1,8 +1,8 @@
 """Reading circuit files and following `use`, with every size and path bounded.
 
 Files arrive in pull requests from anyone: a `use` path must stay inside the
-root folder after symlinks are resolved, files are at most 2 MiB, at most
-`MAX_FILES` files are read, and a `use` cycle is an error naming the chain.
+root folder after symlinks are resolved, files are at most `MAX_FILE_BYTES`, at most
+`MAX_FILES` files and `MAX_TOTAL_BYTES` are read, and a `use` cycle is an error naming the chain.
 """
 
 from __future__ import annotations
@@ -11,12 +11,13 @@ import os
 from pathlib import Path
 
 from checker.errors import CircuitSyntaxError, DesignError, Location, NodegateError
-from checker.language.parser import parse_tree
+from checker.language.quick import read
 from checker.language.source import Source
-from checker.language.syntax import Block, Let, Statement, Use, statements
+from checker.language.syntax import Block, Let, Statement, Use
 
-MAX_FILE_BYTES = 2 * 1024 * 1024
+MAX_FILE_BYTES = 128 * 1024 * 1024  # a grid of a million nets is 110 MB (docs/language.md, "Limits")
 MAX_FILES = 256
+MAX_TOTAL_BYTES = 256 * 1024 * 1024  # every file read for one circuit together
 
 
 def read_source(path: Path, shown: str, location: Location | None) -> Source:
@@ -31,14 +32,16 @@ def read_source(path: Path, shown: str, location: Location | None) -> Source:
     except OSError as error:
         raise DesignError(f"cannot read `{shown}`: {error.strerror or error}", location) from None
     if len(data) > MAX_FILE_BYTES:  # at the `use` that names it, else at the file itself
-        raise DesignError(_too_large(shown), location or Location(shown, 1, 1, _first_line(data)))
+        raise DesignError(_too_large(shown, MAX_FILE_BYTES), location or Location(shown, 1, 1, _first_line(data)))
     return Source(shown, decode(data, shown))
 
 
-def text_source(text: str, shown: str) -> Source:
-    """Text held in memory, bounded and normalised exactly as a file read from disk would be."""
-    if len(text.encode("utf-8", errors="surrogatepass")) > MAX_FILE_BYTES:
-        raise DesignError(_too_large(shown), Location(shown, 1, 1, text.split("\n", 1)[0][:200]))
+def text_source(text: str, shown: str, limit: int | None = None) -> Source:
+    """Text held in memory, bounded (by `limit` bytes, else MAX_FILE_BYTES) and normalised exactly as a
+    file read from disk would be."""
+    limit = MAX_FILE_BYTES if limit is None else limit
+    if len(text) > limit or len(text.encode("utf-8", errors="surrogatepass")) > limit:
+        raise DesignError(_too_large(shown, limit), Location(shown, 1, 1, text[:200].split("\n", 1)[0]))
     return Source(shown, _normalised(text))
 
 
@@ -47,8 +50,8 @@ def _first_line(data: bytes) -> str:
     return data[:200].split(b"\n", 1)[0].decode("utf-8", errors="replace")
 
 
-def _too_large(shown: str) -> str:
-    return f"`{shown}` is larger than {MAX_FILE_BYTES // (1024 * 1024)} MiB"
+def _too_large(shown: str, limit: int) -> str:
+    return f"`{shown}` is larger than {limit // (1024 * 1024)} MiB"
 
 
 def _normalised(text: str) -> str:
@@ -79,15 +82,17 @@ class Loader:
     def __init__(self, root: Path):
         self.root = root.resolve()
         self.seen: set[Path] = set()
+        self.size = 0  # characters read so far
 
     def top(self, source: Source, real: Path | None) -> list[Statement]:
         chain = (real.resolve(),) if real is not None else ()
+        self.size = len(source.text)
         self.seen.update(chain)
         return self.statements(source, chain, library=False)
 
     def statements(self, source: Source, chain: tuple[Path, ...], library: bool) -> list[Statement]:
         found: list[Statement] = []
-        for statement in statements(parse_tree(source), source):
+        for statement in read(source):
             if isinstance(statement, Use):
                 found.extend(self.use(statement, source, chain))
             elif library and not isinstance(statement, (Let, Block)):
@@ -110,6 +115,10 @@ class Loader:
         if len(self.seen) > MAX_FILES:
             raise DesignError(f"more than {MAX_FILES} files are used", statement.location)
         library = read_source(resolved, shown, statement.location)
+        self.size += len(library.text)
+        if self.size > MAX_TOTAL_BYTES:
+            raise DesignError(f"the files used come to more than {MAX_TOTAL_BYTES // (1024 * 1024)} MiB",
+                              statement.location)
         try:
             return self.statements(library, chain + (resolved,), library=True)
         except NodegateError as error:  # say which `use` brought the file in

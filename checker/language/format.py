@@ -23,6 +23,10 @@ from checker.language.files import text_source
 from checker.language.parser import parse_tree
 from checker.language.source import Source
 
+# The formatter reads the whole file with the grammar (about 10,000 lines a second): it takes
+# hand-written files, not the generated ones the checker itself reads up to MAX_FILE_BYTES.
+MAX_FORMAT_BYTES = 2 * 1024 * 1024
+
 __all__ = ["format_circuit"]
 
 INDENT = 4  # spaces: a block body, and a continuation that starts right after `(` or `:`
@@ -61,7 +65,7 @@ def format_circuit(text: str, path: str = "<text>") -> str:
     `path` is shown in error messages. Formatting is idempotent and keeps the design:
     the result elaborates to the same parts, values and cases.
     """
-    source = text_source(text, path)
+    source = text_source(text, path, MAX_FORMAT_BYTES)
     tree, tokens, comments = _read(source)
     layout = _Layout(tokens, comments)
     layout.scope([c for c in tree.children if isinstance(c, Tree)], 1, len(source.lines), 0)

@@ -1,7 +1,8 @@
 """Text to lark tree: the grammar in `circuit.lark`, line continuation, syntax errors.
 
-The grammar is loaded once (LALR, contextual lexer, positions kept). Every lark
-error becomes a `CircuitSyntaxError` at the offending token, in plain words.
+The grammar is loaded once (LALR, contextual lexer, positions kept; after the first run the
+built tables come from `checker.larkcache`). Every lark error becomes a `CircuitSyntaxError`
+at the offending token, in plain words.
 """
 
 from __future__ import annotations
@@ -10,11 +11,12 @@ import re
 import threading
 from importlib import resources
 
-from lark import Lark, Token, Tree
+from lark import Token, Tree
 from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken
 from lark.lexer import PatternStr
 
 from checker.errors import CircuitSyntaxError, Location
+from checker.larkcache import cached_lark
 from checker.language.source import Source
 
 MAX_PARENTHESES = 32  # nesting depth of `( … )`; deeper is an error, never a crash
@@ -69,8 +71,8 @@ def _block_heading(heading: tuple | None, previous: Token | None, token: Token) 
 
 _POSTLEX = _Continuation()
 _GRAMMAR = resources.files("checker.language").joinpath("circuit.lark").read_text(encoding="utf-8")
-_PARSER = Lark(_GRAMMAR, parser="lalr", lexer="contextual", propagate_positions=True,
-               maybe_placeholders=True, postlex=_POSTLEX)
+_PARSER = cached_lark(_GRAMMAR, "circuit", parser="lalr", lexer="contextual", propagate_positions=True,
+                      maybe_placeholders=True, postlex=_POSTLEX)
 
 # Common mistakes, recognised by the parser state they stop in (lark's match_examples).
 # That state includes the depth of the parser's stack, which differs for the first

@@ -1,12 +1,14 @@
 """The text of one input file and how to point into it.
 
-Every Location made here carries its source line, so errors render the same
-whether the text came from disk or from memory.
+Every Location made here carries the file's text and where its line starts, so errors
+render the same whether the text came from disk or from memory. The text is split into
+lines only when a message needs a line by number.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
+from functools import cached_property
 
 from checker.errors import Location
 
@@ -17,10 +19,10 @@ class Source:
 
     path: str
     text: str
-    lines: tuple[str, ...] = field(init=False, repr=False, compare=False)
 
-    def __post_init__(self) -> None:
-        object.__setattr__(self, "lines", tuple(self.text.split("\n")))
+    @cached_property
+    def lines(self) -> tuple[str, ...]:
+        return tuple(self.text.split("\n"))
 
     def at_position(self, line: int, column: int) -> Location:
         """A 1-based line and column, clamped into the file."""
@@ -30,7 +32,11 @@ class Source:
     def at(self, item) -> Location:
         """The start of a lark Token, or of a Tree (through its meta)."""
         holder = getattr(item, "meta", item)
-        return self.at_position(getattr(holder, "line", 1), getattr(holder, "column", 1))
+        try:
+            line, column, start = holder.line, holder.column, holder.start_pos
+        except AttributeError:  # a tree without position (lark's empty meta)
+            return self.at_position(1, 1)
+        return Location(self.path, line, column, None, self.text, start - column + 1)
 
     def end(self) -> Location:
         """Just after the last character of the last non-blank line."""

@@ -130,10 +130,10 @@ def declared(name: Name, what: str) -> str:
 
 def statements(tree: Tree, source: Source) -> list[Statement]:
     """The statements of a parsed file, in order."""
-    return [_Builder(source).statement(child) for child in tree.children if isinstance(child, Tree)]
+    return [Builder(source).statement(child) for child in tree.children if isinstance(child, Tree)]
 
 
-class _Builder:
+class Builder:
     """Dispatch by rule name: `statement` calls the method named like the grammar rule."""
 
     def __init__(self, source: Source):

@@ -14,6 +14,7 @@ from pathlib import Path
 import lark
 
 from checker.errors import LimitError, Location
+from checker.larkcache import cached_lark
 from checker.units import Dim, Quantity, quantity
 
 MAX_LENGTH = 2000  # characters in one expression
@@ -116,8 +117,8 @@ class Not:
 
 
 _GRAMMAR = Path(__file__).with_name("expr.lark")
-_PARSER = lark.Lark(_GRAMMAR.read_text(encoding="utf-8"), parser="lalr", lexer="contextual",
-                    propagate_positions=True, maybe_placeholders=True)
+_PARSER = cached_lark(_GRAMMAR.read_text(encoding="utf-8"), "expr", parser="lalr", lexer="contextual",
+                      propagate_positions=True, maybe_placeholders=True)
 
 _NUMBER = re.compile(r"(\d+(?:\.\d+)?|\.\d+)(?:[eE][+-]?\d+)?")
 

@@ -4,6 +4,7 @@ import pytest
 
 from checker.errors import DesignError, UnitError
 from checker.language import parse_design
+from checker.language.elaborate import MAX_PARTS
 
 HEAD = "circuit weather_station\nground gnd\n"
 
@@ -118,9 +119,10 @@ def test_language_block_depth_is_bounded():
 
 
 def test_language_part_count_is_bounded():
-    # Each level quadruples the parts: 2 * 4^8 = 131 072 resistors exceed the bound of 100 000.
+    # Each level quadruples the parts: 2 * 4^10 = 2 097 152 resistors exceed the bound of 2 000 000,
+    # which is told before any of them is made.
     blocks = "".join(f"block b{i} (p) {{\n" + "".join(f"    b{i + 1} {n} (p: p)\n" for n in "WXYZ") + "}\n"
-                     for i in range(8))
-    blocks += "block b8 (p) {\n    resistor R from p to gnd : 1 ohm\n    resistor S from p to gnd : 1 ohm\n}\n"
+                     for i in range(10))
+    blocks += "block b10 (p) {\n    resistor R from p to gnd : 1 ohm\n    resistor S from p to gnd : 1 ohm\n}\n"
     caught = error(blocks + "b0 TOP (p: n)\n")
-    assert "more than 100000 parts" in caught.message
+    assert f"more than {MAX_PARTS} parts" in caught.message

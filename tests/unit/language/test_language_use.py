@@ -6,6 +6,7 @@ import pytest
 
 from checker.errors import CircuitSyntaxError, DesignError
 from checker.language import load_design, parse_design
+from checker.language import files
 
 LIBRARY = """\
 # shared parts of the weather-station boards
@@ -115,7 +116,8 @@ def test_language_missing_top_file(tmp_path):
     assert caught.location is None and "cannot find" in caught.message
 
 
-def test_language_file_too_large(tmp_path):
+def test_language_file_too_large(tmp_path, monkeypatch):
+    monkeypatch.setattr(files, "MAX_FILE_BYTES", 2 * 1024 * 1024)  # the real cap is 128 MiB
     path = tmp_path / "big.circuit"
     path.write_bytes(b"#" * (2 * 1024 * 1024 + 1))
     caught = failure(path)
