@@ -15,6 +15,7 @@ import jinja2
 from checker import __version__
 from checker.design import OperatingPoint, PartResult
 from checker.findings import CircuitResult, Findings
+from checker.larkcache import cache_folder
 from checker.report.overview import margin_overview
 from checker.report.solve import DIGITS
 from checker.report.svg import Chart, margin_chart
@@ -113,9 +114,13 @@ def _strategies(circuit: CircuitResult) -> str:
 
 @lru_cache(maxsize=1)
 def _environment() -> jinja2.Environment:
+    # Compiled templates are kept in the private cache of checker.larkcache (compiling them took a
+    # quarter of a second of every run that wrote HTML); without a safe folder they are compiled.
+    folder = cache_folder()
+    cache = jinja2.FileSystemBytecodeCache(str(folder), "jinja-%s.cache") if folder is not None else None
     env = jinja2.Environment(loader=jinja2.PackageLoader("checker.report", "templates"),
                              autoescape=True, undefined=jinja2.StrictUndefined,
-                             trim_blocks=True, lstrip_blocks=True)
+                             trim_blocks=True, lstrip_blocks=True, bytecode_cache=cache)
     env.globals.update(status_word=lambda status: STATUS_WORDS.get(status, status),
                        strategies=_strategies, plural=plural)
     return env
