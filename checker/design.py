@@ -8,6 +8,7 @@ temperatures are in kelvin.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import Any, Mapping
 
 from checker.errors import Location
@@ -75,9 +76,9 @@ class Netlist:
     case_location: Location | None = field(default=None, compare=False)
     starts: tuple[tuple[str, float], ...] = ()
 
-    @property
+    @cached_property
     def nets(self) -> tuple[str, ...]:
-        """Every net, ground first, then in order of first appearance."""
+        """Every net, ground first, then in order of first appearance (computed once: frozen)."""
         seen = {self.ground: None}
         for part in self.parts:
             for net in part.nets:
@@ -89,6 +90,11 @@ class Netlist:
             if part.name == name:
                 return part
         raise KeyError(name)
+
+    @cached_property
+    def part_map(self) -> Mapping[str, Part]:
+        """The case's parts by name (computed once: frozen)."""
+        return {part.name: part for part in self.parts}
 
 
 @dataclass(frozen=True)
@@ -111,6 +117,16 @@ class Design:
     @property
     def cases(self) -> tuple[str, ...]:
         return tuple(n.case for n in self.netlists)
+
+    @cached_property
+    def all_nets(self) -> frozenset[str]:
+        """Every net of every case, ground included (computed once: frozen)."""
+        return frozenset(net for netlist in self.netlists for net in netlist.nets) | {self.ground}
+
+    @cached_property
+    def part_map(self) -> Mapping[str, Part]:
+        """The declared parts by name (computed once: frozen)."""
+        return {part.name: part for part in self.parts}
 
     def netlist(self, case: str) -> Netlist:
         for netlist in self.netlists:

@@ -236,10 +236,14 @@ def power_deliverers(design: Design, points: Sequence[OperatingPoint]) -> list[F
     """Parts that give out power they cannot have: a dissipating part with negative power, a regulator
     or converter whose input receives power (its output is driven from outside, or its pins swapped)."""
     found = []
+    floors: dict[int, float] = {}  # per operating point, computed once: not once per part (quadratic)
     for name, present in _by_part(design, points, ONLY_DISSIPATE + CONVERTS).items():
         outcomes, first = [], None
         for point, part in present:
-            floor = POWER_FLOOR * max((abs(result.power) for result in point.parts.values()), default=0.0)
+            if id(point) not in floors:
+                floors[id(point)] = POWER_FLOOR * max((abs(result.power) for result in point.parts.values()),
+                                                      default=0.0)
+            floor = floors[id(point)]
             power = point.parts[name].power
             if part.kind in CONVERTS:
                 power = min(power, _input_power(point, part))

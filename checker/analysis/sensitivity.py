@@ -22,7 +22,7 @@ from checker.analysis.stacked import stack_point
 from checker.design import OperatingPoint
 from checker.findings import Outcome
 from checker.limits.compiler import CaseValues
-from checker.limits.engine import CompiledItem, CompiledLimit
+from checker.limits.engine import MIN_GROUP, CompiledItem, CompiledLimit, bulk
 
 MAX_DRIVERS = 5
 RESOLUTION = 1e-9
@@ -67,12 +67,25 @@ class SideSwing:
 def outcomes_at(targets: Sequence[Target], point: OperatingPoint, corner: str = "") -> dict[Key, Outcome]:
     """Each target's outcome at one operating point, labelled with its stable state; targets whose
     parts are absent are left out."""
-    values = CaseValues(point)
-    found = {}
+    with bulk():
+        return _outcomes_at(targets, CaseValues(point), point.state, corner)
+
+
+def _outcomes_at(targets: Sequence[Target], values: CaseValues, state: str, corner: str) -> dict[Key, Outcome]:
+    by_limit: dict[int, list[Target]] = {}
     for target in targets:
-        outcome = target.item.outcome(values, corner)
-        if outcome is not None:
-            found[target.key] = replace(outcome, state=point.state) if point.state else outcome
+        by_limit.setdefault(target.key[0], []).append(target)
+    found = {}
+    for group in by_limit.values():
+        compiled = group[0].limit
+        if compiled.groups and len(group) >= MIN_GROUP:  # the items as arrays (checker.limits.vector)
+            every = compiled.outcomes(values, corner, state)
+            found.update((target.key, every[target.key[1]]) for target in group if every[target.key[1]] is not None)
+            continue
+        for target in group:
+            outcome = target.item.outcome(values, corner)
+            if outcome is not None:
+                found[target.key] = replace(outcome, state=state) if state else outcome
     return found
 
 

@@ -44,7 +44,8 @@ class CaseValues:
         self.ambient = op.ambient  # K
         self.nets = op.nets
         self.results = op.parts
-        self.parts = {part.name: part for part in op.netlist.parts}
+        self.parts = op.netlist.part_map
+        self.cache: dict = {}  # arrays the vectorised checks read (checker.limits.vector), built once per case
 
 
 class DeclaredValues:
@@ -53,7 +54,8 @@ class DeclaredValues:
     def __init__(self, design: Design):
         self.case = "(declared values)"
         self.ambient = None  # no case yet: a temperature's relative margin falls back to |bound|
-        self.parts = {part.name: part for part in design.parts}
+        self.parts = design.part_map
+        self.cache: dict = {}
 
 
 @dataclass(frozen=True)
@@ -85,8 +87,7 @@ class Scope:
 
     @classmethod
     def of(cls, design: Design, where: Locator) -> "Scope":
-        nets = frozenset(net for netlist in design.netlists for net in netlist.nets) | {design.ground}
-        return cls(design, {part.name: part for part in design.parts}, nets, where)
+        return cls(design, design.part_map, design.all_nets, where)
 
     def error(self, message: str, pos: int, notes: tuple[str, ...] = ()) -> LimitError:
         return self.where.error(message, pos, notes)

@@ -17,11 +17,14 @@ board and leave the intended node unchecked.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import datetime
+import gc
 import re
-from dataclasses import dataclass
-from typing import Callable, Iterable, Mapping, Sequence
+from dataclasses import dataclass, field, replace
+from functools import cached_property
+from typing import Callable, Iterable, Iterator, Mapping, Sequence
 
 from checker.design import Design, OperatingPoint, Part
 from checker.errors import LimitError, Location, did_you_mean
@@ -31,6 +34,7 @@ from checker.limits.files import LimitFile, unique_ids
 from checker.limits.margins import Verdict
 from checker.limits.sides import Split, split_check
 from checker.limits.syntax import Locator, parse_expression
+from checker.limits.vector import Program, signature
 from checker.limits.waivers import apply_waivers
 from checker.lints import IDS as LINT_IDS
 
@@ -38,12 +42,24 @@ from checker.lints import IDS as LINT_IDS
 @dataclass(frozen=True)
 class CompiledItem:
     """One item of a limit in one circuit: the part of an `each` limit (or None), its compiled check,
-    and the check split into its one-sided comparisons (for worst-case analysis)."""
+    and the check split into its one-sided comparisons (for worst-case analysis).
+
+    `check` and `split` are compiled on first use from the parsed `tree` and the item's `scope`:
+    a limit's items are evaluated together as arrays (`checker.limits.vector`), and the engine
+    compiles `check` eagerly for the first item of each signature, which validates the rest."""
 
     part: str | None
     location: Location | None
-    check: Callable[[object], Verdict]
-    split: Split
+    tree: object = field(repr=False, compare=False)
+    scope: Scope = field(repr=False, compare=False)
+
+    @cached_property
+    def check(self) -> Callable[[object], Verdict]:
+        return compile_condition(self.tree, self.scope)
+
+    @cached_property
+    def split(self) -> Split:
+        return split_check(self.tree, self.scope)
 
     def outcome(self, values: CaseValues, corner: str = "") -> Outcome | None:
         """The outcome in one case; None when a part or net the check reads is absent in that case."""
@@ -54,15 +70,76 @@ class CompiledItem:
 
 
 @dataclass(frozen=True)
+class Group:
+    """Items of one limit evaluated together: `numbers` index the limit's items, `rows` the program's parts."""
+
+    program: Program
+    numbers: tuple[int, ...]
+    rows: tuple[int, ...]
+
+
+_NEW = object.__new__
+_SET = object.__setattr__
+
+
+@contextlib.contextmanager
+def bulk() -> Iterator[None]:
+    """The cyclic garbage collector paused while hundreds of thousands of acyclic records (Outcomes,
+    Findings) are made: its passes over the growing heap would otherwise cost a third of the time."""
+    enabled = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        if enabled:
+            gc.enable()
+
+
+@dataclass(frozen=True)
 class CompiledLimit:
-    """A limit compiled for one circuit: its items (one, with part None, for limits without `each`)."""
+    """A limit compiled for one circuit: its items (one, with part None, for limits without `each`),
+    and the groups of items evaluated as arrays (the rest, and items in trouble, item by item)."""
 
     limit: Limit
     circuit: str
     items: tuple[CompiledItem, ...]
+    groups: tuple[Group, ...] = ()
 
     def applies_to(self, case: str) -> bool:
         return self.limit.cases is None or case in self.limit.cases
+
+    def outcomes(self, values: CaseValues, corner: str = "", state: str = "") -> list[Outcome | None]:
+        """Every item's outcome in one case (None where its parts are absent), labelled with `corner`
+        and the stable `state`; the same Outcomes as `CompiledItem.outcome`, computed as arrays."""
+        found: list[Outcome | None] = [None] * len(self.items)
+        pending = [True] * len(self.items)
+        for group in self.groups:
+            result = group.program.run(values)
+            if result is None:
+                continue
+            arrays, trouble = result
+            value, bound, margin, relative, holds, unit, bad = (
+                array.tolist() for array in (arrays.value, arrays.bound, arrays.margin, arrays.relative(),
+                                             arrays.holds, arrays.unit, trouble))
+            symbols = group.program.symbols
+            absolute = [flag for _, flag in group.program.units]
+            case = values.case
+            for number, row in zip(group.numbers, group.rows):
+                if bad[row]:
+                    continue
+                outcome = _NEW(Outcome)  # an Outcome without its dataclass __init__: hundreds of thousands
+                _SET(outcome, "__dict__", {
+                    "case": case, "value": value[row], "bound": bound[row], "margin": margin[row],
+                    "relative": relative[row], "unit": symbols[unit[row]], "absolute": absolute[unit[row]],
+                    "holds": holds[row], "corner": corner, "method": "", "proved": False, "point": (), "error": "",
+                    "state": state})
+                found[number] = outcome
+                pending[number] = False
+        for number, item in enumerate(self.items):
+            if pending[number]:
+                outcome = item.outcome(values, corner)
+                found[number] = replace(outcome, state=state) if state and outcome is not None else outcome
+        return found
 
 
 @dataclass(frozen=True)
@@ -89,6 +166,10 @@ def _where_holds(tree, scope: Scope, values: DeclaredValues) -> bool:
         return False
 
 
+MIN_GROUP = 4
+"""Items of one signature below this many are evaluated item by item: arrays would not pay."""
+
+
 def compile_limit(limit: Limit, design: Design, trees: tuple | None = None) -> CompiledLimit:
     """Compile `limit` for one circuit; Unresolved when a name is not in this circuit, LimitError otherwise.
 
@@ -97,21 +178,72 @@ def compile_limit(limit: Limit, design: Design, trees: tuple | None = None) -> C
     check_tree, where_tree = trees or _parse(limit)
     scope = Scope.of(design, _locator(limit.check, limit))
     if limit.each is None:
-        return CompiledLimit(limit, design.name, (_item(None, None, check_tree, scope),))
+        item = CompiledItem(None, None, check_tree, scope)
+        item.check  # compiled now, so that a rule error shows before any solving
+        return CompiledLimit(limit, design.name, (item,))
     where_scope = dataclasses.replace(scope, where=_locator(limit.where or "", limit), static=True)
-    declared = DeclaredValues(design)
-    items = []
-    for part in design.parts:
-        if not _selected(part, limit.each):
-            continue
-        if where_tree is not None and not _where_holds(where_tree, dataclasses.replace(where_scope, item=part), declared):
-            continue
-        items.append(_item(part.name, part.location, check_tree, dataclasses.replace(scope, item=part)))
-    return CompiledLimit(limit, design.name, tuple(items))
+    return _Items(check_tree, where_tree, scope, where_scope, design).compile(limit)
 
 
-def _item(part: str | None, location: Location | None, tree, scope: Scope) -> CompiledItem:
-    return CompiledItem(part, location, compile_condition(tree, scope), split_check(tree, scope))
+class _Items:
+    """The items of an `each` limit, chosen and compiled in part order, so that the first rule error
+    is the one the items would raise one by one. Per signature (`checker.limits.vector.signature`)
+    the first item is compiled as a closure (which validates the rest); the others are evaluated as
+    arrays, `where` included, and only those the arrays cannot judge exactly fall back to closures."""
+
+    def __init__(self, check_tree, where_tree, scope: Scope, where_scope: Scope, design: Design):
+        self.check_tree, self.where_tree = check_tree, where_tree
+        self.scope, self.where_scope, self.design = scope, where_scope, design
+        self.declared = DeclaredValues(design)
+        self.wheres: dict[tuple, tuple | None] = {}  # signature -> (holds, trouble) over its candidates
+        self.programs: dict[tuple, Program] = {}  # signature -> the check's program over its candidates
+        self.by_signature: dict[tuple, list[Part]] = {}
+        self.row: dict[str, int] = {}  # part -> its row among the candidates of its signature
+
+    def compile(self, limit: Limit) -> CompiledLimit:
+        candidates = [part for part in self.design.parts if _selected(part, limit.each)]
+        for part in candidates:
+            members = self.by_signature.setdefault(signature(part), [])
+            self.row[part.name] = len(members)
+            members.append(part)
+        items: list[CompiledItem] = []
+        grouped: dict[tuple, list[int]] = {}
+        for part in candidates:
+            key = signature(part)
+            if self.where_tree is not None and not self._selects(part, key):
+                continue
+            item = CompiledItem(part.name, part.location, self.check_tree, dataclasses.replace(self.scope, item=part))
+            if key not in self.programs:
+                item.check  # the first item of its signature: validates the others
+                self.programs[key] = Program(self.check_tree, item.scope, self.by_signature[key])
+            elif self.programs[key].declared_trouble[self.row[part.name]]:
+                item.check  # `declared` the arrays cannot give: its own closure decides
+            grouped.setdefault(key, []).append(len(items))
+            items.append(item)
+        groups = tuple(Group(self.programs[key], tuple(numbers), tuple(self.row[items[n].part] for n in numbers))
+                       for key, numbers in grouped.items() if len(numbers) >= MIN_GROUP)
+        return CompiledLimit(limit, self.design.name, tuple(items), groups)
+
+    def _selects(self, part: Part, key: tuple) -> bool:
+        """`where` for one part: its signature's first part by closure, the others from the arrays."""
+        scope = dataclasses.replace(self.where_scope, item=part)
+        if key not in self.wheres:
+            try:
+                holds = compile_condition(self.where_tree, scope)(self.declared).holds
+            except NoMatch:
+                self.wheres[key] = None
+                return False
+            result = Program(self.where_tree, scope, self.by_signature[key]).run(self.declared)
+            self.wheres[key] = (None, None) if result is None else (result[0].holds, result[1])
+            return holds
+        found = self.wheres[key]
+        if found is None:
+            return False
+        holds, trouble = found
+        row = self.row[part.name]
+        if holds is None or trouble[row]:
+            return _where_holds(self.where_tree, scope, self.declared)
+        return bool(holds[row])
 
 
 def _parse(limit: Limit) -> tuple:
@@ -238,15 +370,28 @@ def evaluate(limit_set: LimitSet, operating_points: Mapping[str, Sequence[Operat
     An item whose parts are absent in every selected case yields no Finding.
     """
     values = {circuit: [CaseValues(op) for op in ops] for circuit, ops in operating_points.items()}
+    with bulk():
+        findings = _evaluated(limit_set, values)
+    return apply_waivers(findings, limit_set.waivers, today)
+
+
+def _evaluated(limit_set: LimitSet, values: Mapping[str, list[CaseValues]]) -> list[Finding]:
     findings = []
     for compiled in limit_set.limits:
         cases = [case for case in values.get(compiled.circuit, ()) if compiled.applies_to(case.case)]
-        for item in compiled.items:
-            outcomes = tuple(o for o in (item.outcome(case) for case in cases) if o is not None)
+        try:
+            per_case = [compiled.outcomes(case) for case in cases]
+        except LimitError:  # raise the error the items meet first taken one by one, each in every case
+            for item in compiled.items:
+                for case in cases:
+                    item.outcome(case)
+            raise
+        for number, item in enumerate(compiled.items):
+            outcomes = tuple(found[number] for found in per_case if found[number] is not None)
             if outcomes:
                 findings.append(Finding(compiled.limit, compiled.circuit, item.part, outcomes, "pass",
                                         item_location=item.location))
-    return apply_waivers(findings, limit_set.waivers, today)
+    return findings
 
 
 def evaluate_limits(limit_files: Sequence[LimitFile], designs: Sequence[Design],

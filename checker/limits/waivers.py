@@ -27,7 +27,7 @@ def _status(finding: Finding, waivers: Sequence[Waiver], used: set[int]) -> Find
     """The finding with its status: pass, waived, or fail/warn by the limit's severity."""
     failing = [outcome for outcome in finding.outcomes if not outcome.holds]
     if not failing:
-        return dataclasses.replace(finding, status="pass")
+        return finding if finding.status == "pass" else dataclasses.replace(finding, status="pass")
     cover = []
     for outcome in failing:
         found = [index for index, waiver in enumerate(waivers) if _covers(waiver, finding, outcome)]

@@ -19,7 +19,7 @@ from checker.larkcache import cache_folder
 from checker.report.overview import margin_overview
 from checker.report.solve import DIGITS
 from checker.report.svg import Chart, margin_chart
-from checker.report.view import NO_TEXT, STATUS_WORDS, ReportView, Row, build_view, plural
+from checker.report.view import NEAR, NO_TEXT, STATUS_WORDS, ReportView, Row, build_view, plural, worst_first
 from checker.units import format_temperature, format_value
 from checker.verdict import Verdict
 
@@ -40,6 +40,29 @@ class CircuitView:
     nets: tuple[TableRow, ...]
     parts: tuple[TableRow, ...]
     limits: tuple[tuple[Row, Chart], ...]
+    rows: tuple[Row, ...] = ()  # findings in full but without a chart (beyond MAX_CHARTS), a table row each
+    summaries: tuple["Summary", ...] = ()  # the findings holding with room to spare, one line per limit
+
+
+@dataclass(frozen=True)
+class Summary:
+    """The items of one limit that hold with room to spare, summarised: how many, and the worst of them."""
+
+    limit: str
+    about: str
+    count: int
+    worst: Row
+
+
+FULL_DETAIL = 200
+"""A circuit with at most this many findings shows each in full. Above it, only the findings that
+fail, warn, are waived or hold by less than NEAR (relative margin) are in full; the others are
+summarised per limit (count, worst item and margin), so that 200,000 outcomes make a report of a
+few megabytes. The JSON report keeps every outcome."""
+
+MAX_CHARTS = 150
+"""Above FULL_DETAIL findings, the worst this many findings shown in full have their margin chart
+(a few kilobytes each); the others are a table row each, with every number and the waiver."""
 
 
 def _reading(number: float, unit: str) -> str:
@@ -97,14 +120,40 @@ def _part_rows(points: tuple[OperatingPoint, ...]) -> tuple[TableRow, ...]:
     return tuple(rows)
 
 
-def circuit_view(circuit: CircuitResult, rows: tuple[Row, ...]) -> CircuitView:
-    """A circuit's operating-point tables and the margin chart of each of its findings."""
+def _in_full(row: Row) -> bool:
+    """Whether a finding needs its own section: it fails, warns or is waived, or holds by little."""
+    if row.status != "pass":
+        return True
+    relative = row.finding.worst.relative
+    return not relative >= NEAR  # NaN (no scale) too
+
+
+def _summaries(rows: list[Row]) -> tuple[Summary, ...]:
+    by_limit: dict[str, list[Row]] = {}
+    for row in rows:
+        by_limit.setdefault(row.limit, []).append(row)
+    return tuple(Summary(limit, group[0].about, len(group), min(group, key=lambda r: r.finding.worst.relative))
+                 for limit, group in by_limit.items())
+
+
+def circuit_view(circuit: CircuitResult, rows: tuple[Row, ...], full_detail: int | None = None) -> CircuitView:
+    """A circuit's operating-point tables and the margin chart of each of its findings; above
+    `full_detail` findings, those holding with room to spare are summarised per limit."""
     points = circuit.operating_points
-    mine = tuple((row, margin_chart(row.finding)) for row in rows
-                 if row.circuit == circuit.name and row.finding.outcomes)
+    mine = [row for row in rows if row.circuit == circuit.name and row.finding.outcomes]
+    rest: list[Row] = []
+    plain: list[Row] = []
+    if len(mine) > (FULL_DETAIL if full_detail is None else full_detail):
+        rest = [row for row in mine if not _in_full(row)]
+        mine = [row for row in mine if _in_full(row)]
+        charted = {id(row) for row in worst_first(mine)[:MAX_CHARTS]}
+        plain = [row for row in mine if id(row) not in charted]
+        mine = [row for row in mine if id(row) in charted]
     return CircuitView(name=circuit.name, title=circuit.title, path=circuit.path,
                        cases=tuple(_case_heading(p) for p in points),
-                       nets=_net_rows(points), parts=_part_rows(points), limits=mine)
+                       nets=_net_rows(points), parts=_part_rows(points),
+                       limits=tuple((row, margin_chart(row.finding)) for row in mine), rows=tuple(plain),
+                       summaries=_summaries(rest))
 
 
 def _strategies(circuit: CircuitResult) -> str:
@@ -131,4 +180,5 @@ def render_html(findings: Findings, verdict: Verdict | None = None) -> str:
     view: ReportView = build_view(findings, verdict)
     circuits = tuple((c, circuit_view(c, view.rows)) for c in findings.circuits)
     template = _environment().get_template("report.html.j2")
-    return template.render(view=view, circuits=circuits, overview=margin_overview(view.rows), version=__version__)
+    return template.render(view=view, circuits=circuits, overview=margin_overview(view.rows), version=__version__,
+                           near=f"{NEAR:.0%}")

@@ -8,7 +8,8 @@ margin change over their tolerance band, `fail_fraction` for Monte Carlo, and `r
 `part`, `property`, `from`, `to`, `series`, `margin_after`, `all_limits_hold`, docs/remedies.md),
 `fixed` (with --base), `waiver_notes`, and `circuits` with the operating point of every case
 in the shape of `solve --format json`. Temperatures are kelvin, flagged `absolute`;
-NaN and infinities become null so that any JSON reader accepts the file.
+NaN and infinities become null so that any JSON reader accepts the file. Up to COMPACT_OUTCOMES
+outcomes the document is indented; above, compact (the same document, without the whitespace).
 
 Each outcome also carries `method` ("vertices", "corner-search", "interior"; null outside
 worst-case) with `proved` (true or false beside a method, else null), `point` (every
@@ -99,9 +100,14 @@ def verdict_json(findings: Findings, verdict: Verdict) -> dict[str, Any]:
             "new_failures": new_failures(findings), "fixed": len(findings.fixed)}
 
 
+COMPACT_OUTCOMES = 10_000
+"""Above this many outcomes the document is written compact (no indentation, no spaces after
+separators): a file that large is for tools, and indentation would add a third to its size."""
+
+
 def render_json(findings: Findings, verdict: Verdict | None = None) -> str:
-    """The whole run as one JSON document, indented, ending in a newline; `verdict` defaults to
-    that of `--fail-on any`, not strict."""
+    """The whole run as one JSON document ending in a newline, indented up to COMPACT_OUTCOMES
+    outcomes and compact above; `verdict` defaults to that of `--fail-on any`, not strict."""
     limits = {f.limit.id: f.limit for f in findings.findings + findings.fixed}
     document = {
         "schema": SCHEMA,
@@ -116,7 +122,9 @@ def render_json(findings: Findings, verdict: Verdict | None = None) -> str:
                       "self_check": worst_self_check(c.operating_points),
                       "cases": [case_json(p) for p in c.operating_points]} for c in findings.circuits],
     }
-    return json.dumps(document, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    outcomes = sum(len(f.outcomes) for f in findings.findings + findings.fixed)
+    layout = {"indent": 2} if outcomes <= COMPACT_OUTCOMES else {"separators": (",", ":")}
+    return json.dumps(document, ensure_ascii=False, allow_nan=False, **layout) + "\n"
 
 
 def _analysis(analysis) -> dict:

@@ -353,7 +353,7 @@ def make_note(note: WaiverNote) -> NoteRow:
                    until=waiver.until.isoformat(), where=where)
 
 
-def _worst_first(rows: list[Row]) -> tuple[Row, ...]:
+def worst_first(rows: list[Row]) -> tuple[Row, ...]:
     """No operating point first (−inf), then most negative relative margin; undefined relative
     margins last, order kept."""
     def key(row: Row) -> float:
@@ -411,8 +411,8 @@ def build_view(findings: Findings, verdict: Verdict | None = None) -> ReportView
     rows = [make_row(f, paths.get(f.circuit, "")) for f in findings.findings]
     return ReportView(
         verdict=make_verdict(findings, verdict or judge(findings)),
-        failures=_worst_first([r for r in rows if r.status == "fail"]),
-        warnings=_worst_first([r for r in rows if r.status == "warn" and not r.lint]),
+        failures=worst_first([r for r in rows if r.status == "fail"]),
+        warnings=worst_first([r for r in rows if r.status == "warn" and not r.lint]),
         lints=tuple(r for r in rows if r.lint and r.status != "waived"),
         waived=tuple(r for r in rows if r.status == "waived"),
         expired=tuple(make_note(n) for n in findings.expired_waivers),
