@@ -114,7 +114,8 @@ class _Expander:
         self.count = 0
         self.instances: set[str] = set()
         self.quantities: dict[tuple, Quantity | None] = {}  # the quick path's literals, each read once
-        self.strings: dict[str, str] = {}  # one string per net name, however often it is written
+        self.items: dict[tuple, tuple | None] = {}  # the quick path's item lists by kind, each read once
+        self.strings: dict = {}  # one string per net name (one tuple per spots' keys, columns) however often written
         self.sizes: dict[str, int] = {}  # parts per instance of each block, once expanded
 
     def expand(self, found: list[PartStatement | QuickPart], prefix: str, ports: dict[str, str],
@@ -163,8 +164,23 @@ class _Expander:
             if net != self.ground and net in RESERVED:
                 return None
             nets.append(self.strings.setdefault(net, net))
+        read = self.items.get((kind.name, line.items), ())
+        if read == ():  # the same items on many lines (`100 ohm`) are read once
+            read = self.items[kind.name, line.items] = self.read_items(line, kind, scope)
+        if read is None:
+            return None
+        value, unit, flags, tags, props, at, keys, offsets = read
+        start = line.columns[4]
+        columns = self.shared((line.columns[2], line.columns[3], *(start + offset for offset in offsets)))
+        location = line.at(line.columns[1])
+        return Part(line.name, kind.name, (("from", nets[0]), ("to", nets[1])), value, unit, flags, dict(props),
+                    dict(at), tags, location, Spots(location, keys, columns))
+
+    def read_items(self, line: QuickPart, kind: Kind, scope: Scope) -> tuple | None:
+        """What the items of a quick line give a part of `kind`: value, unit, flags, tags, properties,
+        test conditions, the spots' keys and each value's offset in the items; None when unusual."""
         value = unit = None
-        keys, columns = ["from", "to"], [line.columns[2], line.columns[3]]
+        keys, offsets = ["from", "to"], []
         flags, tags, props, at = frozenset(), set(), {}, {}
         for index, item in enumerate(line.parsed_items()):
             key, word = item.group("key", "vref")
@@ -202,16 +218,17 @@ class _Expander:
                     return None
                 props[key] = number.value
             keys.append("value" if key is None else key)
-            columns.append(item.start("vref" if word is not None else "vneg" if item.group("vneg") else "vnum") + 1)
-        location = line.at(line.columns[1])
-        part = Part(line.name, kind.name, (("from", nets[0]), ("to", nets[1])), value, unit, flags, props, at,
-                    frozenset(tags), location, Spots(location, self.strings.setdefault(tuple(keys), tuple(keys)),
-                                                      tuple(columns)))
+            offsets.append(item.start("vref" if word is not None else "vneg" if item.group("vneg") else "vnum"))
+        probe = Part(line.name, kind.name, (), value, unit, flags, props, at)
         try:
-            check_complete(kind, part, location)
+            check_complete(kind, probe, None)
         except NodegateError:
             return None
-        return part
+        return value, unit, flags, frozenset(tags), props, at, self.shared(tuple(keys)), tuple(offsets)
+
+    def shared(self, value: tuple) -> tuple:
+        """One tuple for equal ones: parts of a large circuit repeat the same keys and columns."""
+        return self.strings.setdefault(value, value)
 
     def literal(self, item, tag: str, scope: Scope) -> Quantity | None:
         """The value of a quick item's quantity or let name, as `evaluate` gives it; None if that fails."""

@@ -22,6 +22,7 @@ mutated files, that both paths give the same trees, designs and errors.
 
 from __future__ import annotations
 
+import io
 import re
 from collections.abc import Mapping
 
@@ -68,16 +69,24 @@ _SEPARATOR = re.compile(rf"{_WS}*,{_WS}*")
 class QuickPart:
     """One part line read without the grammar: the groups of `LINE` and where the line starts."""
 
-    __slots__ = ("kind", "name", "net_from", "net_to", "items", "line", "start", "text", "columns", "source")
+    __slots__ = ("kind", "name", "net_from", "net_to", "items", "line", "start", "columns", "source")
 
-    def __init__(self, match: re.Match, line: int, start: int):
-        self.kind, self.name, self.net_from, self.net_to, self.items = match.group("kind", "name", "a", "b", "items")
+    def __init__(self, match: re.Match, line: int, start: int, shared: dict):
+        kind, self.name, net_from, net_to, items = match.group("kind", "name", "a", "b", "items")
+        # one string for each kind, net and item list however often it is written: the line itself is not kept
+        self.kind, self.net_from, self.net_to = (shared.setdefault(kind, kind), shared.setdefault(net_from, net_from),
+                                                 shared.setdefault(net_to, net_to))
+        self.items = items if items is None else shared.setdefault(items, items)
         self.line, self.start = line, start
         # 1-based columns of kind, name, from net, to net, items
-        self.columns = (match.start("kind") + 1, match.start("name") + 1, match.start("a") + 1,
-                        match.start("b") + 1, match.start("items") + 1)
-        self.text = match.string
+        columns = (match.start("kind") + 1, match.start("name") + 1, match.start("a") + 1,
+                   match.start("b") + 1, match.start("items") + 1)
+        self.columns = shared.setdefault(columns, columns)
         self.source: Source | None = None
+
+    def column(self, item: re.Match, group: str) -> int:
+        """The 1-based column in the line of a group of one of `parsed_items`."""
+        return self.columns[4] + item.start(group)
 
     def at(self, column: int) -> Location:
         """The place of `column` (1-based) on this line."""
@@ -92,17 +101,17 @@ class QuickPart:
         return Builder(self.source).statement(self.tree())
 
     def parsed_items(self) -> list[re.Match]:
-        """The items after `:`, each an `ITEM` match over the line (positions are the line's)."""
+        """The items after `:`, each an `ITEM` match over `items` (see `column`)."""
         if self.items is None:
             return []
-        found, position, end = [], self.columns[4] - 1, self.columns[4] - 1 + len(self.items)
+        found, position, end = [], 0, len(self.items)
         while True:
-            item = ITEM.match(self.text, position, end)
+            item = ITEM.match(self.items, position)
             found.append(item)
             position = item.end()
             if position >= end:
                 return found
-            position = _SEPARATOR.match(self.text, position).end()
+            position = _SEPARATOR.match(self.items, position).end()
 
     def tree(self) -> Tree:
         """The lark tree the grammar gives for this line (`two_terminal`), positions included."""
@@ -121,21 +130,21 @@ class QuickPart:
         value = self._expr(item, "v")
         if item.group("key") is None:
             return _tree("bare", [value])
-        key = self._token("NAME", item.group("key"), item.start("key") + 1)
+        key = self._token("NAME", item.group("key"), self.column(item, "key"))
         if item.group("anum") is None and item.group("aref") is None:
             return _tree("assign", [key, value])
         return _tree("assign_at", [key, value, self._expr(item, "a")])
 
     def _expr(self, item: re.Match, tag: str) -> Tree:
         if item.group(tag + "ref") is not None:
-            return _tree("ref", [self._token("NAME", item.group(tag + "ref"), item.start(tag + "ref") + 1)])
-        number = self._token("NUMBER", item.group(tag + "num"), item.start(tag + "num") + 1)
+            return _tree("ref", [self._token("NAME", item.group(tag + "ref"), self.column(item, tag + "ref"))])
+        number = self._token("NUMBER", item.group(tag + "num"), self.column(item, tag + "num"))
         unit = item.group(tag + "unit")
         quantity = _tree("quantity", [number, None if unit is None else
-                                      self._token("UNIT", unit, item.start(tag + "unit") + 1)])
+                                      self._token("UNIT", unit, self.column(item, tag + "unit"))])
         if item.group(tag + "neg") is None:
             return quantity
-        return _tree("neg", [quantity], self._token("MINUS", "-", item.start(tag + "neg") + 1))
+        return _tree("neg", [quantity], self._token("MINUS", "-", self.column(item, tag + "neg")))
 
 
 class Spots(Mapping):
@@ -183,21 +192,24 @@ def split(text: str) -> tuple[str, list[QuickPart]]:
     """The text with the quick lines blanked, and those lines read; see the module docstring."""
     pieces: list[str] = []
     quick: list[QuickPart] = []
+    shared: dict = {}  # strings and column tuples met before, and blank lines by length
     depth = braces = 0
     continued = False
     start = 0
     match_line = LINE.fullmatch
-    for number, line in enumerate(text.split("\n"), start=1):
+    for number, line in enumerate(io.StringIO(text, newline="\n"), start=1):  # one line at a time
+        end = len(line) - 1 if line.endswith("\n") else len(line)
         if not (depth or braces or continued):
-            found = match_line(line)
+            found = match_line(line, 0, end)
             if found is not None:
-                quick.append(QuickPart(found, number, start))
-                pieces.append(" " * len(line))
-                start += len(line) + 1
+                quick.append(QuickPart(found, number, start, shared))
+                blank = (end, len(line))
+                pieces.append(shared.get(blank) or shared.setdefault(blank, " " * end + line[end:]))
+                start += len(line)
                 continue
         pieces.append(line)
-        start += len(line) + 1
-        for token in _STRUCTURE.finditer(line):
+        start += len(line)
+        for token in _STRUCTURE.finditer(line, 0, end):
             mark = token.group()
             if mark == "#":
                 break
@@ -212,7 +224,7 @@ def split(text: str) -> tuple[str, list[QuickPart]]:
             continued = mark in (",", ":")
     if not quick:
         return text, quick
-    return "\n".join(pieces), quick
+    return "".join(pieces), quick
 
 
 def read(source: Source) -> list[Statement | QuickPart]:
