@@ -34,6 +34,7 @@ from checker.findings import Outcome
 from checker.solver import Cache
 
 
+ALONE = 8  # samples handed to the ordinary solver together (it compares each netlist with the others)
 BATCH_ENTRIES = 20_000_000  # samples x unknowns² of one batch's dense blocks (160 MB of float64)
 
 
@@ -106,7 +107,10 @@ def _evaluate(work: Work, first: int, last: int) -> ChunkTally:
     left = np.flatnonzero(~ok)
     netlists = [perturbed(point.netlist, {t.part: float(d) for t, d in zip(work.tolerances, deviations[i])})
                 for i in left]
-    alone = dict(zip(left.tolist(), solve_each(netlists, work.cache(), [point] * len(netlists)))) if netlists else {}
+    alone = dict(zip(left.tolist(), _alone(work, netlists)))
+    read = {i: solved if isinstance(solved, str) else outcomes_at(work.targets, replace(solved, state=point.state),
+                                                                   corner[i])
+            for i, solved in alone.items()}  # each sample the ordinary solver solved, read once for every target
     worst: dict[Key, Outcome] = {}
     fails: dict[Key, np.ndarray] = {}
     for target in work.targets:
@@ -126,11 +130,11 @@ def _evaluate(work: Work, first: int, last: int) -> ChunkTally:
                 failing[rows] = batch_margins < 0
                 for i in rows[batch_margins == 0]:
                     found[int(i)] = _at(target, values, int(position[i]), corner[i], point.state)
-        for i, solved in alone.items():
+        for i, solved in read.items():
             if isinstance(solved, str):
                 found[i] = unsolved({key: nominal[key]}, solved, corner[i])[key]
             else:
-                found[i] = outcomes_at([target], replace(solved, state=point.state), corner[i]).get(key)
+                found[i] = solved.get(key)
         for i, outcome in found.items():
             margins[i] = math.inf if outcome is None else outcome.margin
             failing[i] = outcome is not None and not outcome.holds
@@ -142,6 +146,16 @@ def _evaluate(work: Work, first: int, last: int) -> ChunkTally:
         if outcome is not None:
             worst[key] = outcome
     return ChunkTally(state_key(point), worst, fails)
+
+
+def _alone(work: Work, netlists: list) -> list:
+    """The ordinary solver at each netlist, ALONE at a time (`solve_cases` compares each netlist of a
+    call with the others, to share work, which costs the square of their number when none can)."""
+    found = []
+    for start in range(0, len(netlists), ALONE):
+        some = netlists[start:start + ALONE]
+        found += solve_each(some, work.cache(), [work.point] * len(some))
+    return found
 
 
 def _batch(work: Work, deviations: np.ndarray) -> tuple[Stacked | None, np.ndarray]:
