@@ -138,9 +138,13 @@ def test_the_stability_screen_passes_only_stable_points():
 def test_a_sample_without_an_operating_point_fails_with_the_solvers_message(monkeypatch):
     messages = {}
 
-    def solve_each(netlists, cache, guesses):
-        return ["no operating point here (test)" if k == 0 else checker.analysis.blocks.solve_each([n], cache, [g])[0]
-                for k, (n, g) in enumerate(zip(netlists, guesses))]
+    calls = []
+
+    def solve_each(netlists, cache, guesses):  # the first board of each case has no operating point
+        calls.append(len(netlists))
+        first = len(calls) == 1 or sum(calls[:-1]) % 20 == 0
+        return ["no operating point here (test)" if first and k == 0 else
+                checker.analysis.blocks.solve_each([n], cache, [g])[0] for k, (n, g) in enumerate(zip(netlists, guesses))]
     one_by_one(monkeypatch)
     monkeypatch.setattr(checker.analysis.samples, "solve_each", solve_each)
     findings = run(CIRCUIT_TWO_CASES, ("voltage(mid) >= 1.3 V",), Analysis("monte-carlo", 20, 1))
