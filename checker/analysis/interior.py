@@ -9,7 +9,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import linprog
 
 from checker.analysis.boxpoints import BoxPoints
 from checker.analysis.search import STEP, Candidate, TargetSearch, combined
@@ -128,6 +127,7 @@ def _step(d: Descent) -> tuple[np.ndarray, float]:
     count = low.size
     cost = np.zeros(count + 1)
     cost[-1] = 1.0  # minimise t subject to value_s + slope_s . p <= t
+    from scipy.optimize import linprog  # here: importing scipy.optimize costs every run a fifth of a second
     result = linprog(cost, A_ub=np.column_stack([slopes, -np.ones(len(active))]), b_ub=-values,
                      bounds=list(zip(low, high)) + [(None, None)], method="highs")
     if not result.success:

@@ -56,11 +56,11 @@ def _value(tag: str) -> str:
 # `KEY = VALUE [at VALUE]` or a bare `VALUE` (where lark reads a following `at` as a unit).
 _ITEM = rf"(?:(?P<key>{_NAME}){_WS}*={_WS}*)?{_value('v')}(?(key)(?:{_WS}+at{_WS}+{_value('a')})?)"
 ITEM = re.compile(_ITEM)
-_ANON_ITEM = rf"(?:{_NAME}{_WS}*={_WS}*{_value('')}(?:{_WS}+at{_WS}+{_value('')})?|{_value('')})"
-_ANON_ITEM = re.sub(r"\(\?P<\w+>", "(?:", _ANON_ITEM)
+# The line's shape; its items (no `#` can stand in them) are then read by ITEM one after another
+# (`_items`), which must account for every character of them.
 LINE = re.compile(
     rf"{_WS}*(?P<kind>{_NAME}){_WS}+(?P<name>{_NAME}){_WS}+from{_WS}+(?P<a>{_NAME}){_WS}+to{_WS}+(?P<b>{_NAME})"
-    rf"(?:{_WS}*:{_WS}*(?P<items>{_ANON_ITEM}(?:{_WS}*,{_WS}*{_ANON_ITEM})*))?{_WS}*(?:#[^\n]*)?")
+    rf"(?:{_WS}*:{_WS}*(?P<items>[^#\n]*?))?{_WS}*(?:#[^\n]*)?")
 # What moves the state between lines: strings, comments and the structural characters.
 _STRUCTURE = re.compile(r'"[^"\n]*"|#|[(){},:]|[^\t \f]')
 _SEPARATOR = re.compile(rf"{_WS}*,{_WS}*")
@@ -102,16 +102,7 @@ class QuickPart:
 
     def parsed_items(self) -> list[re.Match]:
         """The items after `:`, each an `ITEM` match over `items` (see `column`)."""
-        if self.items is None:
-            return []
-        found, position, end = [], 0, len(self.items)
-        while True:
-            item = ITEM.match(self.items, position)
-            found.append(item)
-            position = item.end()
-            if position >= end:
-                return found
-            position = _SEPARATOR.match(self.items, position).end()
+        return [] if self.items is None else _items(self.items)
 
     def tree(self) -> Tree:
         """The lark tree the grammar gives for this line (`two_terminal`), positions included."""
@@ -145,6 +136,23 @@ class QuickPart:
         if item.group(tag + "neg") is None:
             return quantity
         return _tree("neg", [quantity], self._token("MINUS", "-", self.column(item, tag + "neg")))
+
+
+def _items(text: str) -> list[re.Match] | None:
+    """`ITEM, ITEM, ...` read from the whole of `text`; None when anything else stands in it."""
+    found, position, end = [], 0, len(text)
+    while True:
+        item = ITEM.match(text, position)
+        if item is None:
+            return None
+        found.append(item)
+        position = item.end()
+        if position == end:
+            return found
+        separator = _SEPARATOR.match(text, position)
+        if separator is None:
+            return None
+        position = separator.end()
 
 
 class Spots(Mapping):
@@ -193,6 +201,7 @@ def split(text: str) -> tuple[str, list[QuickPart]]:
     pieces: list[str] = []
     quick: list[QuickPart] = []
     shared: dict = {}  # strings and column tuples met before, and blank lines by length
+    readable: dict[str, bool] = {}  # item lists met before: whether ITEM reads them
     depth = braces = 0
     continued = False
     start = 0
@@ -201,7 +210,10 @@ def split(text: str) -> tuple[str, list[QuickPart]]:
         end = len(line) - 1 if line.endswith("\n") else len(line)
         if not (depth or braces or continued):
             found = match_line(line, 0, end)
-            if found is not None:
+            items = None if found is None else found.group("items")
+            if items is not None and items not in readable:  # read once for every line repeating them
+                readable[items] = _items(items) is not None
+            if found is not None and (items is None or readable[items]):
                 quick.append(QuickPart(found, number, start, shared))
                 blank = (end, len(line))
                 pieces.append(shared.get(blank) or shared.setdefault(blank, " " * end + line[end:]))
