@@ -11,7 +11,6 @@ nothing; progress goes through the optional callback.
 from __future__ import annotations
 
 import datetime
-import time
 from typing import Callable
 
 from checker.design import Design
@@ -22,7 +21,7 @@ from checker.analysis.worstcase import DEFAULT_VERTEX_VALUES
 from checker.findings import Analysis, Findings
 from checker.language import load_design
 from checker.limits import LimitFile, compile_limits, load_limit_file, load_pack
-from checker.remedies.search import Budget, remedy_seconds, with_remedies
+from checker.remedies.search import with_remedies
 from checker.repo.config import Config
 
 Progress = Callable[[str], None]
@@ -88,15 +87,13 @@ def check_work(config: Config, designs: list[Design]) -> None:
 def run_check(config: Config, today: datetime.date, progress: Progress | None = None,
               remedies: bool = True) -> Findings:
     """Solve every circuit in every case and evaluate every limit of `config` under its tolerance analysis;
-    with `remedies`, then search each failing and warning limit's remedies within the default budget,
-    whose time is at most what the analysis took (`checker.remedies.search`, docs/remedies.md)."""
+    with `remedies`, then search each failing and warning limit's remedies within the default budget
+    (`checker.remedies.search`, docs/remedies.md)."""
     designs = load_designs(config)
     files = load_limit_files(config)
     limit_set = compile_limits(files, designs)
     check_work(config, designs)
-    started = time.monotonic()
     findings = analyse(limit_set, designs, today, analysis_of(config), progress)
     if not remedies:
         return findings
-    budget = Budget(seconds=remedy_seconds(time.monotonic() - started))
-    return with_remedies(findings, files, designs, today, analysis_of(config), progress, budget)
+    return with_remedies(findings, files, designs, today, analysis_of(config), progress)

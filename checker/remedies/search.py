@@ -60,16 +60,9 @@ DEFAULT_CONFIRMATIONS = 6
 """Whole-circuit confirmations one check may spend in the configured analysis (a worst-case
 confirmation costs as much as the check of that circuit itself). Nominal pre-checks are not counted."""
 DEFAULT_SECONDS = 60.0
-"""Wall-clock seconds the remedy search of one check may take at most; no new search or confirmation
-starts after them (one that has started finishes). A check's own budget is `remedy_seconds`."""
-MIN_SECONDS = 2.0  # the least time a check's remedy search gets, however fast its analysis was
-
-
-def remedy_seconds(analysis_seconds: float) -> float:
-    """The remedy search's time budget for a check whose analysis took `analysis_seconds`: as long
-    again, at least MIN_SECONDS and at most DEFAULT_SECONDS, so remedies never more than double a
-    check's time (beyond a short floor)."""
-    return min(DEFAULT_SECONDS, max(MIN_SECONDS, analysis_seconds))
+"""Wall-clock seconds the remedy search of one check may take; no new search or confirmation starts
+after them (one that has started finishes). A safety net: the counted budgets above decide what is
+found, so that the same check finds the same remedies on a fast machine and a slow one."""
 MAX_CANDIDATES = 4  # values tried per finding
 MAX_REMEDIES = 3  # remedies listed per finding
 SWING_BAND = 0.01  # ±1 %: the move that ranks candidates
