@@ -58,7 +58,7 @@ class Diode(Device):
         reject(~(ideality > 0), self.parts, lambda p: f"{self.kind} {p.name} needs an ideality above zero")
         rseries = prop_array(self.parts, "rseries", 0.0)
         reject(~(rseries >= 0), self.parts, lambda p: f"{self.kind} {p.name} has a negative rseries")
-        log_is_ref = np.array([self._log_isat_ref(p, n, r) for p, n, r in zip(self.parts, ideality, rseries)])
+        log_is_ref = self._log_isat_refs(ideality, rseries)
         log_is = junction.log_isat_at(log_is_ref, ideality, ambient, self.band_gap(log_is_ref, ideality))
         self.branches = [Branch(1.0, log_is, ideality * junction.thermal_voltage(ambient), rseries)]
 
@@ -69,6 +69,27 @@ class Diode(Device):
     @classmethod
     def describe(cls, part: Part) -> str:
         return f"the diode {part.name}"
+
+    def _log_isat_refs(self, ideality: np.ndarray, rseries: np.ndarray) -> np.ndarray:
+        """ln Is (A) at 25 degC of every part, as `_log_isat_ref` gives it part by part, with the parts
+        that take the kind's default point (no isat, no vf: most of a big panel) in one numpy pass.
+
+        The pass applies the same float64 operations elementwise, so each value is the one the
+        part-by-part function gives (tests/unit/solver/test_solver_devices.py checks this exactly).
+        """
+        if self.default_point is None:
+            return np.array([self._log_isat_ref(p, n, r) for p, n, r in zip(self.parts, ideality, rseries)])
+        given = np.array([bool(part.props) and ("isat" in part.props or "vf" in part.props) for part in self.parts],
+                         dtype=bool)
+        result = np.empty(len(self.parts))
+        volts, amps = self.default_point
+        bare = ~given
+        result[bare] = junction.log_isat_from_point(
+            np.full(int(bare.sum()), volts), np.full(int(bare.sum()), amps),
+            ideality[bare] * junction.thermal_voltage(junction.T_REFERENCE), rseries[bare])
+        for k in np.flatnonzero(given).tolist():
+            result[k] = self._log_isat_ref(self.parts[k], ideality[k], rseries[k])
+        return result
 
     def _log_isat_ref(self, part: Part, ideality: float, rseries: float) -> float:
         """ln Is (A) at 25 degC from isat, from vf = V at I, or from the kind's default."""

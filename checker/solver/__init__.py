@@ -74,8 +74,8 @@ def solve_cases(netlists: Sequence[Netlist], cache: Cache | None = None,
     for group in groups:
         if not group.system.nonlinear_devices:
             with _watched(group.netlist):
-                factor = Factor(group.system.matrix, group.netlist)
-                solutions = factor.solve(np.column_stack([systems[m].rhs for m in group.members]))
+                factor = Factor(group.system.matrix, group.netlist, group.system.topology.orderings)
+                solutions = factor.solve_cases(np.column_stack([systems[m].rhs for m in group.members]))
             for column, position in enumerate(group.members):
                 with _watched(netlists[position]):
                     points[position] = operating_point(systems[position], solutions[:, column], 1, "linear")
@@ -232,10 +232,12 @@ def _grouped(netlists: Sequence[Netlist], cache: Cache) -> tuple[list[Group], li
     groups: list[Group] = []
     systems: list[System] = []
     for position, netlist in enumerate(netlists):
-        topology = cache.topology(netlist)
-        candidates = [group for group in groups if group.system.topology is topology]
-        mark = signature(netlist, topology) if candidates else None
-        group = next((g for g in candidates if g.admits(netlist, mark)), None)
+        group = groups[-1] if groups and groups[-1].shares_parts(netlist) else None
+        if group is None:
+            topology = cache.topology(netlist)
+            candidates = [group for group in groups if group.system.topology is topology]
+            mark = signature(netlist, topology) if candidates else None
+            group = next((g for g in candidates if g.admits(netlist, mark)), None)
         with _watched(netlist):
             if group is None:
                 system = assemble(netlist, topology)

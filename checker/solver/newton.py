@@ -140,7 +140,7 @@ class Equations:
         zero = np.zeros(self.size)
         residual, jacobian, _ = self.linearise(zero, first=True, gain_cap=gain_cap)
         try:
-            return self.limit(Factor(jacobian, self.netlist).solve(-residual), zero)
+            return self.limit(Factor(jacobian, self.netlist, self.system.topology.orderings).solve(-residual), zero)
         except NoSolutionError:
             return zero
 
@@ -174,7 +174,7 @@ def iterate(equations: Equations, x: np.ndarray, shunt: float, scale: float, bud
             x, halvings = previous + 0.5 * (x - previous), halvings + 1
             continue
         try:
-            target = x + Factor(jacobian, equations.netlist).solve(-residual)
+            target = x + Factor(jacobian, equations.netlist, equations.system.topology.orderings).solve(-residual)
         except NoSolutionError:
             return Run(x, iteration, False)
         x_new = equations.limit(target, x)

@@ -44,8 +44,9 @@ def operating_point(system: System, x: np.ndarray, iterations: int, strategy: st
     groups = [_group_results(device, x_ext) for device in system.devices]
     topology = system.topology
     factor = linear.latest(system.matrix, system.netlist, system.size)
-    checked = selfcheck.check(system, x, [g.currents for g in groups], [g.power for g in groups],
-                              selfcheck.digits_lost(factor))
+    with linear.one_thread(system.size):  # the estimate's products and solves, like the solve's
+        checked = selfcheck.check(system, x, [g.currents for g in groups], [g.power for g in groups],
+                                  selfcheck.digits_lost(factor))
     if system.nonlinear_devices:
         linear.forget()  # Newton-Raphson's last Jacobian: nothing else will ask for it
     parts = PartResults(system.netlist.parts, groups, topology.group_of, topology.row_of,

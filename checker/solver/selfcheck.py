@@ -125,7 +125,7 @@ def check(system, x: np.ndarray, pin_currents: Sequence[np.ndarray], power: Sequ
     currents = np.concatenate([c.ravel() for c in pin_currents] or [np.empty(0)])
     sums = np.bincount(where, currents, n + 1)
 
-    linear_terms = abs(system.matrix) @ np.abs(x) + np.abs(system.rhs) if system.size else np.zeros(0)
+    linear_terms = magnitude(system.matrix) @ np.abs(x) + np.abs(system.rhs) if system.size else np.zeros(0)
     size = np.zeros(n + 1)
     size[:n] = linear_terms[:n]
     nonlinear = [k for k, d in enumerate(devices) if d.nonlinear]
@@ -152,6 +152,16 @@ def check(system, x: np.ndarray, pin_currents: Sequence[np.ndarray], power: Sequ
     worst = int(np.argmax(np.abs(sums))) if sums.size else n
     return SelfCheck(float(np.abs(sums[worst])) if sums.size else 0.0,
                      system.nets[0] if worst == n else system.nets[worst + 1], abs(total), branch, digits_lost)
+
+
+_MAGNITUDE: list = [None, None]  # the last matrix and |matrix|: the cases of one group share their matrix
+
+
+def magnitude(matrix: sp.spmatrix) -> sp.spmatrix:
+    """|matrix| entrywise, made once for the matrix that many cases in a row share."""
+    if _MAGNITUDE[0] is not matrix:
+        _MAGNITUDE[:] = [matrix, abs(matrix)]
+    return _MAGNITUDE[1]
 
 
 def _ratio(residual: np.ndarray, tolerance: np.ndarray) -> np.ndarray:

@@ -13,7 +13,8 @@ comparison, which is nearly free for netlists that share their Part objects.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from operator import attrgetter
+from itertools import compress, count
+from operator import attrgetter, is_not
 
 from checker.design import Netlist, Part
 from checker.devices import DEVICES
@@ -62,6 +63,22 @@ class Group:
             self._compared = (_masked(parts, rhs), list(map(_LOCATION, parts)), rhs)
         masked, locations, rhs = self._compared
         return _masked(netlist.parts, rhs) == masked and list(map(_LOCATION, netlist.parts)) == locations
+
+
+    def shares_parts(self, netlist: Netlist) -> bool:
+        """Whether `netlist` holds the representative's very Part objects but for parts that differ from
+        theirs only in a right-hand-side value (a case that overrides only sources): then it belongs
+        to this group, as `admits` would find, at the cost of one identity pass over the parts."""
+        mine, theirs = self.netlist, netlist
+        if (theirs.ground != mine.ground or theirs.ambient != mine.ambient
+                or len(theirs.parts) != len(mine.parts)):
+            return False
+        for k in compress(count(), map(is_not, mine.parts, theirs.parts)):
+            a, b = mine.parts[k], theirs.parts[k]
+            if not (a.kind == b.kind and _rhs_only(a) and _rhs_only(b) and a.location == b.location
+                    and _without_value(a) == _without_value(b)):
+                return False
+        return True
 
 
 def signature(netlist: Netlist, topology: Topology) -> int:

@@ -19,6 +19,7 @@ import numpy as np
 from checker.design import Netlist, Part
 from checker.devices import DEVICES, Device
 from checker.errors import DesignError
+from checker.solver.linear import Orderings
 
 MAX_TOPOLOGIES = 16  # kept by one Cache, the least recently used dropped first
 MAX_REMEMBERED = 8  # passed diagnoses and sparsity patterns kept per topology
@@ -95,6 +96,7 @@ class Topology:
             self.row_of[group.positions] = np.arange(group.positions.size)
         self.passed: list[tuple[np.ndarray, ...]] = []  # edge sets whose diagnosis found nothing wrong
         self.patterns: list[Pattern] = []
+        self.orderings = Orderings()  # fill-reducing orderings of its matrices' sparsity patterns (`linear`)
 
     @property
     def n_nodes(self) -> int:
