@@ -205,6 +205,7 @@ class LinearTwoTerminal(Device):
         self.n_branches = int(is_voltage.sum())
         self.branch = np.full(len(self.parts), GROUND)
         self.branch[is_voltage] = first_branch + np.arange(self.n_branches)
+        self._roles: tuple | None = None  # `pin_currents`' selections, made on first use
 
     def elements(self) -> tuple[np.ndarray, np.ndarray]:
         """Each part's Role and value as two arrays; raise DesignError for bad values."""
@@ -234,12 +235,14 @@ class LinearTwoTerminal(Device):
         return Injection(np.concatenate([k, a, b]), np.concatenate([e, -i, i]))
 
     def pin_currents(self, x: np.ndarray) -> np.ndarray:
+        if self._roles is None:  # a device shared by many cases reads the same parts each time
+            conductance, voltage = self.role == Role.CONDUCTANCE, self.role == Role.VOLTAGE
+            fixed = self.role == Role.CURRENT
+            self._roles = (conductance, self.nodes[conductance, 0], self.nodes[conductance, 1],
+                           self.value[conductance], voltage, self.branch[voltage], fixed, self.value[fixed])
+        conductance, a, b, g, voltage, branch, fixed, amps = self._roles
         current = np.zeros(len(self.parts))
-        conductance = self.role == Role.CONDUCTANCE
-        a, b = self.nodes[conductance, 0], self.nodes[conductance, 1]
-        current[conductance] = self.value[conductance] * (x[a] - x[b])
-        voltage = self.role == Role.VOLTAGE
-        current[voltage] = x[self.branch[voltage]]
-        fixed = self.role == Role.CURRENT
-        current[fixed] = self.value[fixed]
+        current[conductance] = g * (x[a] - x[b])
+        current[voltage] = x[branch]
+        current[fixed] = amps
         return np.column_stack([current, -current])

@@ -120,8 +120,7 @@ def check(system, x: np.ndarray, pin_currents: Sequence[np.ndarray], power: Sequ
     n = system.n_nodes
     x_ext = np.append(x, 0.0)
     devices = system.devices
-    where = np.concatenate([d.nodes.ravel() for d in devices] or [np.empty(0, int)])
-    where = np.where(where < 0, n, where)  # ground last
+    where, grounded = _pin_rows(devices, n)
     currents = np.concatenate([c.ravel() for c in pin_currents] or [np.empty(0)])
     sums = np.bincount(where, currents, n + 1)
 
@@ -132,7 +131,7 @@ def check(system, x: np.ndarray, pin_currents: Sequence[np.ndarray], power: Sequ
     if nonlinear:
         size += np.bincount(np.concatenate([where_of(devices[k], n) for k in nonlinear]),
                             np.abs(np.concatenate([pin_currents[k].ravel() for k in nonlinear])), n + 1)
-    size[n] = np.bincount(where, np.abs(currents), n + 1)[n]
+    size[n] = np.abs(currents[grounded]).sum()
     floor = KCL_RELATIVE_FLOOR * float(np.max(size, initial=0.0))
     tolerance = KCL_RELATIVE * size + floor
     tolerance[n] += tolerance[:n].sum()
@@ -152,6 +151,22 @@ def check(system, x: np.ndarray, pin_currents: Sequence[np.ndarray], power: Sequ
     worst = int(np.argmax(np.abs(sums))) if sums.size else n
     return SelfCheck(float(np.abs(sums[worst])) if sums.size else 0.0,
                      system.nets[0] if worst == n else system.nets[worst + 1], abs(total), branch, digits_lost)
+
+
+_PIN_ROWS: list = [(), None]  # the last devices' node arrays and their pin rows: shared by a group's cases
+
+
+def _pin_rows(devices, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """The row of every pin of every device (ground as row n, last) and where ground's pins are; the same
+    node arrays (a topology's) give the same rows, so cases that share them share the work."""
+    key = tuple(d.nodes for d in devices)
+    kept, rows = _PIN_ROWS
+    if rows is None or len(kept) != len(key) or not all(a is b for a, b in zip(kept, key)) or rows[2] != n:
+        where = np.concatenate([d.nodes.ravel() for d in devices] or [np.empty(0, int)])
+        where = np.where(where < 0, n, where)
+        rows = (where, np.flatnonzero(where == n), n)
+        _PIN_ROWS[:] = [key, rows]
+    return rows[0], rows[1]
 
 
 _MAGNITUDE: list = [None, None]  # the last matrix and |matrix|: the cases of one group share their matrix
