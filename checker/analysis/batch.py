@@ -114,16 +114,18 @@ class Tiled:
     def _constant(self) -> tuple[np.ndarray, np.ndarray]:
         """The linear stamps of every block as dense (count, size, size) matrices and (count, size) sources."""
         n, count = self.size, self.count
-        matrix = np.zeros(count * n * n)
-        rhs = np.zeros(count * n)
+        entries, values, rows, injected = [], [], [], []
         for device in self.devices:
             stamp = device.matrix()
             keep = (stamp.rows >= 0) & (stamp.cols >= 0)
-            rows, cols = stamp.rows[keep], stamp.cols[keep]
-            matrix += np.bincount(_flat(rows, cols, n), stamp.values[keep], count * n * n)
+            entries.append(_flat(stamp.rows[keep], stamp.cols[keep], n))
+            values.append(stamp.values[keep])
             injection = device.sources()
             keep = injection.rows >= 0
-            rhs += np.bincount(injection.rows[keep], injection.values[keep], count * n)
+            rows.append(injection.rows[keep])
+            injected.append(injection.values[keep])
+        matrix = np.bincount(np.concatenate(entries), np.concatenate(values), count * n * n)
+        rhs = np.bincount(np.concatenate(rows), np.concatenate(injected), count * n)
         return matrix.reshape(count, n, n), rhs.reshape(count, n)
 
     def linearise(self, x: np.ndarray, matrix: np.ndarray, rhs: np.ndarray, magnitude: np.ndarray):
@@ -132,19 +134,24 @@ class Tiled:
         x_ext = np.append(x.ravel(), 0.0)
         residual = np.einsum("bij,bj->bi", matrix, x) - rhs
         row_scale = np.einsum("bij,bj->bi", magnitude, np.abs(x)) + np.abs(rhs)
-        jacobian = matrix.ravel().copy()
-        residual, row_scale = residual.ravel(), row_scale.ravel()
+        rows, currents, entries, values = [], [], [], []
         for device in self.devices:
             if not device.nonlinear:
                 continue
             s = device.evaluate(x_ext)
             keep = s.rows >= 0
-            rows, currents = s.rows[keep], s.currents[keep]
-            residual += np.bincount(rows, currents, count * n)
-            row_scale += np.bincount(rows, np.abs(currents), count * n)
+            rows.append(s.rows[keep])
+            currents.append(s.currents[keep])
             keep = (s.jacobian.rows >= 0) & (s.jacobian.cols >= 0)
-            jacobian += np.bincount(_flat(s.jacobian.rows[keep], s.jacobian.cols[keep], n),
-                                    s.jacobian.values[keep], count * n * n)
+            entries.append(_flat(s.jacobian.rows[keep], s.jacobian.cols[keep], n))
+            values.append(s.jacobian.values[keep])
+        residual, row_scale = residual.ravel(), row_scale.ravel()
+        jacobian = matrix.ravel()
+        if rows:  # every device's entries in one pass
+            rows_all, currents_all = np.concatenate(rows), np.concatenate(currents)
+            residual += np.bincount(rows_all, currents_all, count * n)
+            row_scale += np.bincount(rows_all, np.abs(currents_all), count * n)
+            jacobian = jacobian + np.bincount(np.concatenate(entries), np.concatenate(values), count * n * n)
         return residual.reshape(count, n), jacobian.reshape(count, n, n), row_scale.reshape(count, n)
 
     def limit(self, new: np.ndarray, old: np.ndarray) -> np.ndarray:
