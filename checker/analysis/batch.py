@@ -71,6 +71,9 @@ class Tiled:
         self.size, self.nodes = system.size, system.n_nodes
         offsets = np.arange(count) * self.size
         self.devices = [(_built if built else _tiled)(device, count, offsets) for device in system.devices]
+        # What a fresh device leaves unset may be a cache it fills on first use (from its values): cleared
+        # whenever the values move.
+        self._lazy = [[name for name, value in vars(device).items() if value is None] for device in self.devices]
         topology = system.topology
         positions = {part.name: m for m, part in enumerate(system.netlist.parts)}
         self._where = {name: (int(topology.group_of[m]), int(topology.row_of[m])) for name, m in positions.items()}
@@ -105,6 +108,9 @@ class Tiled:
     def move(self, deviations: np.ndarray) -> None:
         """Set every block's toleranced values: row b of `deviations` (count, k) is block b's."""
         rows = np.arange(self.count)
+        for device, lazy in zip(self.devices, self._lazy):
+            for name in lazy:
+                setattr(device, name, None)
         for j, (group, attribute, row, nominal, inverse) in enumerate(self._moves):
             device = self.devices[group]
             factor = 1.0 + deviations[:, j]

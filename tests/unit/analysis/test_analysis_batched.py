@@ -193,3 +193,16 @@ def test_worst_case_batched_equals_joint_circuits(monkeypatch):
     joint = example(Analysis("worst-case"))  # every point of the box solved as before: blocks of one joint circuit
     assert len(batched.findings) > 20
     assert_same(batched, joint)
+
+
+def test_nonlinear_runs_reuse_their_batch_with_the_new_values(monkeypatch):
+    whole = example(Analysis("monte-carlo", 24, 6))
+    import checker.analysis.montecarlo
+    monkeypatch.setattr(checker.analysis.montecarlo, "RUN", 5)  # three runs of 8 samples on one tiled system
+    left = []
+    alone = checker.analysis.samples._alone
+    monkeypatch.setattr(checker.analysis.samples, "_alone", lambda work, netlists: left.extend(netlists) or
+                        alone(work, netlists))
+    pieces = example(Analysis("monte-carlo", 24, 6))
+    assert_same(pieces, whole)
+    assert not left  # every sample of every run passed the batch's own checks: no stale device state
