@@ -292,7 +292,7 @@ def find_root(margin: MarginAt, value: float) -> tuple[float, int] | None:
             u = sign * math.log(factor)
             level, holds = at[(sign, factor)]
             if holds:
-                if best is None or abs(u) < abs(best[1]):
+                if best is None or abs(u) < abs(best[1][0]):  # the nearer side's first holding factor
                     best = (before, (u, level), sign)
                 break
             before = (u, level)

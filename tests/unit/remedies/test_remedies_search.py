@@ -6,11 +6,13 @@ from __future__ import annotations
 import datetime
 import json
 
+import pytest
+
 from checker.analysis import analyse
 from checker.findings import Analysis
 from checker.language import parse_design
 from checker.limits import compile_limits, load_limit_text, load_pack
-from checker.remedies.search import Budget, with_remedies
+from checker.remedies.search import Budget, find_root, with_remedies
 from checker.report import summary_lines
 from checker.report.json_report import render_json
 from checker.report.markdown import render_markdown
@@ -97,3 +99,14 @@ def test_every_report_shows_the_remedies():
     assert {k: remedy[k] for k in ("part", "property", "from", "to", "series", "all_limits_hold")} == \
         {"part": "R1", "property": "value", "from": 470.0, "to": 270.0, "series": "E24", "all_limits_hold": True}
     assert remedy["margin_after"] > 0 and abs(remedy["root"] - 300.0) < 1e-6
+
+
+def test_find_root_takes_the_nearer_side_when_both_sides_hold():
+    # A margin that holds outside 8 .. 13 (a `not in` window), from 10: the grid finds holding values
+    # both ways, and the nearer by ratio is 8 (ln(10/8) = 0.22 < ln(13/10) = 0.26); the root is 8 exactly.
+    def margin(values):
+        return [(max(x - 13.0, 8.0 - x) / 10.0, x >= 13.0 or x <= 8.0) for x in values]
+
+    root, sign = find_root(margin, 10.0)
+    assert sign == -1
+    assert root == pytest.approx(8.0, rel=1e-9)
