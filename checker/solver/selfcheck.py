@@ -153,30 +153,32 @@ def check(system, x: np.ndarray, pin_currents: Sequence[np.ndarray], power: Sequ
                      system.nets[0] if worst == n else system.nets[worst + 1], abs(total), branch, digits_lost)
 
 
-_PIN_ROWS: list = [(), None]  # the last devices' node arrays and their pin rows: shared by a group's cases
+_PIN_ROWS: list = [((), None)]  # (the last devices' node arrays, their pin rows): shared by a group's cases
 
 
 def _pin_rows(devices, n: int) -> tuple[np.ndarray, np.ndarray]:
     """The row of every pin of every device (ground as row n, last) and where ground's pins are; the same
     node arrays (a topology's) give the same rows, so cases that share them share the work."""
     key = tuple(d.nodes for d in devices)
-    kept, rows = _PIN_ROWS
+    kept, rows = _PIN_ROWS[0]  # one read of one tuple: another thread may replace it, never half of it
     if rows is None or len(kept) != len(key) or not all(a is b for a, b in zip(kept, key)) or rows[2] != n:
         where = np.concatenate([d.nodes.ravel() for d in devices] or [np.empty(0, int)])
         where = np.where(where < 0, n, where)
         rows = (where, np.flatnonzero(where == n), n)
-        _PIN_ROWS[:] = [key, rows]
+        _PIN_ROWS[0] = (key, rows)
     return rows[0], rows[1]
 
 
-_MAGNITUDE: list = [None, None]  # the last matrix and |matrix|: the cases of one group share their matrix
+_MAGNITUDE: list = [(None, None)]  # (the last matrix, |matrix|): the cases of one group share their matrix
 
 
 def magnitude(matrix: sp.spmatrix) -> sp.spmatrix:
     """|matrix| entrywise, made once for the matrix that many cases in a row share."""
-    if _MAGNITUDE[0] is not matrix:
-        _MAGNITUDE[:] = [matrix, abs(matrix)]
-    return _MAGNITUDE[1]
+    kept = _MAGNITUDE[0]  # one read of one tuple, as in `_pin_rows`
+    if kept[0] is not matrix:
+        kept = (matrix, abs(matrix))
+        _MAGNITUDE[0] = kept
+    return kept[1]
 
 
 def _ratio(residual: np.ndarray, tolerance: np.ndarray) -> np.ndarray:
