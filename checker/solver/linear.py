@@ -149,11 +149,16 @@ class Factor:
         rows = np.flatnonzero(np.any(rhs != 0.0, axis=1))
         if rows.size >= rhs.shape[1]:
             return self.solve(rhs)
+        if not rows.size:  # every source at zero
+            return np.zeros_like(rhs)
         units = np.zeros((self.size, rows.size))
         units[rows, np.arange(rows.size)] = 1.0
         basis = self.solve(units)
         with one_thread(self.size):
-            return basis @ rhs[rows]
+            x = basis @ rhs[rows]
+        if not np.all(np.isfinite(x)):
+            raise singular(self.netlist)
+        return x
 
     @property
     def lu(self):

@@ -128,3 +128,10 @@ def test_vectorised_saturation_currents_are_those_of_each_part(cls):
     rseries = np.array([p.props.get("rseries", 0.0) for p in parts])
     each = np.array([device._log_isat_ref(p, n, r) for p, n, r in zip(parts, ideality, rseries)])
     assert np.array_equal(device._log_isat_refs(ideality, rseries), each)
+
+
+def test_cases_with_every_source_at_zero_solve_to_zero():
+    netlist = grid(6)
+    system = assemble(netlist, Cache().topology(netlist))
+    factor = linear.Factor(system.matrix, netlist)
+    assert np.array_equal(factor.solve_cases(np.zeros((system.size, 4))), np.zeros((system.size, 4)))
