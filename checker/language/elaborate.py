@@ -24,7 +24,7 @@ from checker.language.syntax import (
 from checker.units import SPELLINGS, Quantity, quantity
 
 MAX_BLOCK_DEPTH = 16  # blocks inside blocks
-MAX_PARTS = 2_000_000  # after every block is expanded (docs/language.md, "Limits")
+MAX_PARTS = 2_000_000  # after every block is expanded (docs/language.md, "Limits of size")
 
 
 def elaborate(found: list[Statement], top: Source) -> Design:

@@ -11,11 +11,11 @@ import os
 from pathlib import Path
 
 from checker.errors import CircuitSyntaxError, DesignError, Location, NodegateError
-from checker.language.quick import read
+from checker.language import quick
 from checker.language.source import Source
 from checker.language.syntax import Block, Let, Statement, Use
 
-MAX_FILE_BYTES = 128 * 1024 * 1024  # a grid of a million nets is 110 MB (docs/language.md, "Limits")
+MAX_FILE_BYTES = 128 * 1024 * 1024  # a grid of a million nets is 110 MB (docs/language.md, "Limits of size")
 MAX_FILES = 256
 MAX_TOTAL_BYTES = 256 * 1024 * 1024  # every file read for one circuit together
 
@@ -83,6 +83,7 @@ class Loader:
         self.root = root.resolve()
         self.seen: set[Path] = set()
         self.size = 0  # characters read so far
+        self.grammar = 0  # characters of them read by the grammar (checker.language.quick)
 
     def top(self, source: Source, real: Path | None) -> list[Statement]:
         chain = (real.resolve(),) if real is not None else ()
@@ -92,7 +93,9 @@ class Loader:
 
     def statements(self, source: Source, chain: tuple[Path, ...], library: bool) -> list[Statement]:
         found: list[Statement] = []
-        for statement in read(source):
+        found_here, size = quick.read(source, quick.MAX_GRAMMAR_BYTES - self.grammar)
+        self.grammar += size
+        for statement in found_here:
             if isinstance(statement, Use):
                 found.extend(self.use(statement, source, chain))
             elif library and not isinstance(statement, (Let, Block)):

@@ -29,10 +29,14 @@ from collections.abc import Mapping
 from lark import Token, Tree
 from lark.tree import Meta
 
-from checker.errors import CircuitSyntaxError, Location
+from checker.errors import CircuitSyntaxError, DesignError, Location
 from checker.language.parser import parse_tree
 from checker.language.source import Source
 from checker.language.syntax import Statement, statements, Builder
+
+# The grammar reads about 2,500 lines a second here and holds about 9 KB a line while it does:
+# the text it reads for one circuit (all its files) is bounded apart from the quick lines.
+MAX_GRAMMAR_BYTES = 8 * 2 ** 20
 
 _WS = r"[\t \f]"
 _KEYWORDS = "circuit|ground|let|use|block|case|from|to|at|absent|starts|ambient"
@@ -196,13 +200,22 @@ def _tree(data: str, children: list, first: Token | None = None) -> Tree:
     return Tree(data, children, meta)
 
 
-def split(text: str) -> tuple[str, list[QuickPart]]:
-    """The text with the quick lines blanked, and those lines read; see the module docstring."""
+class OverBudget(Exception):
+    """More text than the grammar may read (`MAX_GRAMMAR_BYTES`); `line` is where it ran out."""
+
+    def __init__(self, line: int):
+        super().__init__(line)
+        self.line = line
+
+
+def split(text: str, budget: int | None = None) -> tuple[str, list[QuickPart], int]:
+    """The text with the quick lines blanked, those lines read, and the characters left to the
+    grammar on lines with a statement; OverBudget past `budget` of them. See the module docstring."""
     pieces: list[str] = []
     quick: list[QuickPart] = []
     shared: dict = {}  # strings and column tuples met before, and blank lines by length
     readable: dict[str, bool] = {}  # item lists met before: whether ITEM reads them
-    depth = braces = 0
+    depth = braces = slow = 0
     continued = False
     start = 0
     match_line = LINE.fullmatch
@@ -221,10 +234,15 @@ def split(text: str) -> tuple[str, list[QuickPart]]:
                 continue
         pieces.append(line)
         start += len(line)
+        counted = False
         for token in _STRUCTURE.finditer(line, 0, end):
             mark = token.group()
             if mark == "#":
                 break
+            if not counted:  # a line holding a statement (blank and comment lines are one token)
+                counted, slow = True, slow + end
+                if budget is not None and slow > budget:
+                    raise OverBudget(number)
             if mark == "(":
                 depth += 1
             elif mark == ")":
@@ -235,20 +253,26 @@ def split(text: str) -> tuple[str, list[QuickPart]]:
                 braces = max(braces - 1, 0)
             continued = mark in (",", ":")
     if not quick:
-        return text, quick
-    return "".join(pieces), quick
+        return text, quick, slow
+    return "".join(pieces), quick, slow
 
 
-def read(source: Source) -> list[Statement | QuickPart]:
-    """The statements of a file in order, quick lines as QuickPart (see the module docstring)."""
-    blanked, quick = split(source.text)
+def read(source: Source, budget: int = MAX_GRAMMAR_BYTES) -> tuple[list[Statement | QuickPart], int]:
+    """The statements of a file in order, quick lines as QuickPart (see the module docstring), and
+    the characters of it the grammar read; a DesignError when they would be more than `budget`."""
+    try:
+        blanked, quick, size = split(source.text, budget)
+    except OverBudget as over:
+        raise DesignError(f"more than {MAX_GRAMMAR_BYTES // 2 ** 20} MiB of statements other than one-line parts "
+                          "(blocks, lets, cases, parts with pins or on several lines) for one circuit",
+                          source.at_position(over.line, 1)) from None
     if not quick:
-        return statements(parse_tree(source), source)
+        return statements(parse_tree(source), source), size
     try:
         tree = parse_tree(Source(source.path, blanked))
     except CircuitSyntaxError:
         tree = parse_tree(source)  # raises the grammar's own error, with its own context
-        return statements(tree, source)  # (never reached while the blanking is sound)
+        return statements(tree, source), size  # (never reached while the blanking is sound)
     slow = statements(tree, source)
     for part in quick:
         part.source = source
@@ -261,4 +285,4 @@ def read(source: Source) -> list[Statement | QuickPart]:
             index += 1
         merged.append(statement)
     merged.extend(quick[index:])
-    return merged
+    return merged, size

@@ -155,7 +155,7 @@ def outcome(text: str):
 
 
 def grammar_only(text: str):
-    with mock.patch.object(quick, "split", lambda text: (text, [])):
+    with mock.patch.object(quick, "split", lambda text, budget=None: (text, [], len(text))):
         return outcome(text)
 
 
@@ -265,3 +265,14 @@ def test_language_quick_spots_point_at_the_tokens():
 def test_language_quick_tricky_files_match_the_grammar(tail):
     text = "circuit c\nground gnd\n" + tail
     assert outcome(text) == grammar_only(text)
+
+
+def test_language_quick_bounds_what_the_grammar_reads(monkeypatch):
+    monkeypatch.setattr(quick, "MAX_GRAMMAR_BYTES", 200)
+    lines = ["circuit c", "ground gnd", "# " + "a long comment " * 40, ""]
+    lines += [f"resistor R{i} from a to gnd : 1 kohm" for i in range(50)]  # quick lines cost nothing
+    lines += [f"let x{i} = {i} V" for i in range(30)]
+    with pytest.raises(NodegateError, match="more than 0 MiB of statements other than one-line parts") as caught:
+        parse_design("\n".join(lines) + "\n", PATH, ROOT)
+    # 19 characters of header, then `let x0 = 0 V` ... `let x14 = 14 V` pass 200 on line 4 + 50 + 15
+    assert (caught.value.location.line, caught.value.location.column) == (4 + 50 + 15, 1)
