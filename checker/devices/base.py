@@ -215,7 +215,9 @@ class LinearTwoTerminal(Device):
         self.n_branches = int(is_voltage.sum())
         self.branch = np.full(len(self.parts), GROUND)
         self.branch[is_voltage] = first_branch + np.arange(self.n_branches)
-        self._roles: tuple | None = None  # `pin_currents`' selections, made on first use
+        # `pin_currents`' selections (with the values they select), made on first use: code that changes
+        # `value` in place sets this back to None (checker/analysis/batch.py does).
+        self._roles: tuple | None = None
 
     def elements(self) -> tuple[np.ndarray, np.ndarray]:
         """Each part's Role and value as two arrays; raise DesignError for bad values."""
