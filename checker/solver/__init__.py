@@ -138,6 +138,7 @@ def stable_near(point: OperatingPoint, guess: OperatingPoint | None, cache: Cach
     best = min(found, key=lambda y: float(np.linalg.norm(y[:system.n_nodes] - near[:system.n_nodes])))
     check_models(system, best)
     with _watched(netlist):
+        _factorised_at(system, best)
         return replace(operating_point(system, best, point.iterations, "state search"), state=point.state)
 
 
@@ -155,10 +156,17 @@ def _case_states(system: System, found: Search, first: OperatingPoint) -> CaseSt
         label = f"{number} of {len(stable)}" if len(stable) > 1 else ""
         newton_found = state is found.points[0]
         with _watched(netlist):
+            _factorised_at(system, state.x)  # the factorisation the self-check's digits-lost estimate reads
             solved = operating_point(system, state.x, first.iterations,
                                      first.strategy if newton_found else "state search")
         points.append(replace(solved, state=label))
     return CaseStates(tuple(points), len(found.points), rejected, len(found.stable))
+
+
+def _factorised_at(system: System, x: np.ndarray) -> None:
+    """Factorise the Jacobian at `x`, so that the operating point read next from `x` estimates its
+    digits lost on its own Jacobian (`linear.latest`), not on the last one a search happened to make."""
+    Factor(Equations(system).linearise(x)[1], system.netlist)
 
 
 def _distance(system: System, x: np.ndarray, starts: Sequence[tuple[str, float]]) -> float:
