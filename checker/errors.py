@@ -44,6 +44,10 @@ class Location:
     def __str__(self) -> str:
         return f"{self.path}:{self.line}:{self.column}"
 
+    def __reduce__(self):
+        """Pickled (for worker processes) with its own line only, not the whole text of its file."""
+        return Location, (self.path, self.line, self.column, self.source_line)
+
 
 class NodegateError(Exception):
     """Input that cannot be checked. Exit code 2 at the command line."""

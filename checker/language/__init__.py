@@ -1,8 +1,9 @@
 """The circuit language: `.circuit` text to a `checker.design.Design`.
 
-Parsing (`parser`, grammar in `circuit.lark`), statements (`syntax`), `use` and
-file bounds (`files`), expressions with units (`expressions`), parts checked
-against the kind table (`parts`), blocks (`elaborate`) and cases (`cases`).
+Parsing (`parser`, grammar in `circuit.lark`; `quick` reads one-line parts without it,
+exactly as it would), statements (`syntax`), `use` and file bounds (`files`),
+expressions with units (`expressions`), parts checked against the kind table
+(`parts`), blocks (`elaborate`) and cases (`cases`).
 Every input problem is a `checker.errors.NodegateError` with a Location.
 """
 

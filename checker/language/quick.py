@@ -174,7 +174,7 @@ class Spots(Mapping):
         except ValueError:
             raise KeyError(key) from None
         line = self._line
-        return Location(line.path, line.line, column, None, line.text, line.line_start)
+        return Location(line.path, line.line, column, line.given_line, line.text, line.line_start)
 
     def __iter__(self):
         return iter(self._keys)

@@ -276,3 +276,15 @@ def test_language_quick_bounds_what_the_grammar_reads(monkeypatch):
         parse_design("\n".join(lines) + "\n", PATH, ROOT)
     # 19 characters of header, then `let x0 = 0 V` ... `let x14 = 14 V` pass 200 on line 4 + 50 + 15
     assert (caught.value.location.line, caught.value.location.column) == (4 + 50 + 15, 1)
+
+
+def test_language_quick_parts_pickle_with_their_lines_only():
+    # Worker processes receive parts: each Location travels with its own line, not the whole file.
+    import pickle
+
+    lines = ["circuit c", "ground gnd"] + [f"resistor R{i} from a to gnd : 1 kohm, tol = 1%" for i in range(2000)]
+    design = parse_design("\n".join(lines) + "\n")
+    part = pickle.loads(pickle.dumps(design.parts[7]))
+    assert part == design.parts[7] and part.location == design.parts[7].location
+    assert part.spots["tol"].source_line == lines[9] and part.spots["tol"].column == 43
+    assert len(pickle.dumps(design.parts[7])) < 2000
