@@ -103,7 +103,7 @@ _EXAMPLES = {label: [context + text for text in texts for context in _CONTEXTS]
              for label, texts in _MISTAKES.items()}
 
 _WORDS = {"NAME": "a name", "NUMBER": "a number", "UNIT": "a unit", "STRING": "a quoted string",
-          "_NL": "the end of the line", "$END": "the end of the file"}
+          "_NL": "the end of the line", "$END": "the end of the file", "_FROM": "`from`", "_TO": "`to`"}
 
 
 def parse_tree(source: Source) -> Tree:

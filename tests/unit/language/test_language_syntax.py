@@ -69,3 +69,14 @@ def test_language_mistakes_recognised_inside_blocks():
 def test_language_empty_block_and_blank_lines_parse():
     design = parse_design("\n\n# header comment\n" + HEAD + "\nblock empty () {\n\n}\n\n# end\n")
     assert design.parts == ()
+
+
+@pytest.mark.parametrize("line, column, message", [
+    # `from` and `to` are whole words: a missing space must not wire a part to a net named `age`.
+    ("resistor R1 fromage to b : 1 kohm\n", 13, "a two-terminal part is written `KIND NAME from NET to NET`"),
+    ("resistor R1 from a tob : 1 kohm\n", 20, "expected `to` after the first net"),
+])
+def test_language_keywords_are_whole_words(line, column, message):
+    caught = syntax_error(line)
+    assert (caught.location.line, caught.location.column) == (3, column)
+    assert caught.message.startswith(message)
