@@ -19,17 +19,8 @@ from checker.solver.results import operating_point, warm_start
 from checker.solver.stability import determinant_sign
 from checker.solver.states import MAX_RUNS, may_have_several, search
 from checker.solver.topology import Cache
+from test_solver_warm_start import LATCH  # a cross-coupled latch; its first case, `hold`, has two stable states
 
-LATCH = """circuit door "Door latch memory"
-ground gnd
-source   VDD     from vdd to gnd : 5 V
-resistor RD1     from vdd to q   : 10 kohm
-resistor RD2     from vdd to qn  : 10 kohm
-mosfet   M1      (d: q, g: qn, s: gnd)  : nmos, vth = 1 V, k = 2 mA/V^2
-mosfet   M2      (d: qn, g: q, s: gnd)  : nmos, vth = 1 V, k = 2 mA/V^2
-resistor R_SET   from q to gnd   : 100 Mohm
-resistor R_RESET from qn to gnd  : 100 Mohm
-"""
 
 
 def _netlist(text: str):
