@@ -22,7 +22,6 @@ from checker.solver.topology import Cache
 from test_solver_warm_start import LATCH  # a cross-coupled latch; its first case, `hold`, has two stable states
 
 
-
 def _netlist(text: str):
     return parse_design(text, "t.circuit").netlists[0]
 
