@@ -23,7 +23,7 @@ from checker.limits.compiler import CaseValues, DeclaredValues, NoMatch, Scope, 
 from checker.limits.engine import CompiledLimit, _locator, _parse, _selected, compile_limit, evaluate
 from checker.limits import LimitSet, engine
 
-from tests.unit.limits.conftest import ROOM, design, part
+from conftest import ROOM, design, part
 
 NUMBERS = [0.0, -0.0, 1.0, -1.0, 0.5, 2.0, 1e-3, 5e-3, 1e-6, 3.3, 1e300, -2.5]
 

@@ -6,7 +6,7 @@ from __future__ import annotations
 from checker.report import html
 from checker.report.html import circuit_view, render_html
 from checker.report.view import NEAR, build_view
-from tests.unit.report.report_bike_light import bike_light
+from report_bike_light import bike_light
 
 
 def test_comfortable_findings_are_summarised_per_limit_and_the_rest_kept_in_full():
