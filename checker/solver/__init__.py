@@ -35,7 +35,7 @@ from checker.solver.newton import check_models, newton
 from checker.solver.results import operating_point, warm_start
 from checker.solver.sharing import Group, signature
 from checker.solver.newton import Equations
-from checker.solver.states import Point, Search, assess_at, may_have_several, search, seeded, settled
+from checker.solver.states import Point, Search, may_have_several, search, seeded, settled
 from checker.solver.topology import Cache
 from checker.units import format_value
 
@@ -128,10 +128,11 @@ def stable_near(point: OperatingPoint, guess: OperatingPoint | None, cache: Cach
         return point
     system = assemble(netlist, (cache or Cache()).topology(netlist))
     x = warm_start(system, point)
+    equations = Equations(system)
     with _watched(netlist):
-        found = settled(system, x)
+        stability, found = settled(equations, x)
     if not found:
-        raise _no_stable_point(system, Search(Equations(system), [Point(x, assess_at(system, x))]))
+        raise _no_stable_point(system, Search(equations, [Point(x, stability)]))
     if found[0] is x:
         return point
     near = warm_start(system, guess or point)

@@ -89,7 +89,7 @@ class Search:
         for point in self.points:
             if np.all(np.abs(point.x[:nodes] - x[:nodes]) <= SAME_VOLTS * (1.0 + np.abs(x[:nodes]))):
                 return False
-        self.points.append(Point(x, assess_at(self.equations.system, x)))
+        self.points.append(Point(x, assess_at(self.equations, x)))
         return True
 
     def spend(self) -> bool:
@@ -199,22 +199,22 @@ def search(system: System, x: np.ndarray, seeds: Iterable[np.ndarray] = ()) -> S
     return found
 
 
-def assess_at(system: System, x: np.ndarray) -> Stability:
-    """The stability of the point `x` of `system` (`stability.assess`, with the fold test)."""
-    equations = Equations(system)
-    return assess(system, equations.linearise(x)[1], x, lambda y: equations.linearise(y)[0])
+def assess_at(equations: Equations, x: np.ndarray) -> Stability:
+    """The stability of the point `x` (`stability.assess`, with the fold test)."""
+    return assess(equations.system, equations.linearise(x)[1], x, lambda y: equations.linearise(y)[0])
 
 
-def settled(system: System, x: np.ndarray) -> list[np.ndarray]:
-    """The stable points reached from `x`: `[x]` itself when it is stable, otherwise those reached by
-    settling from both sides of it along its growing mode (none when neither side reaches one)."""
-    stability = assess_at(system, x)
+def settled(equations: Equations, x: np.ndarray) -> tuple[Stability, list[np.ndarray]]:
+    """The stability of `x` and the stable points reached from it: `[x]` itself when it is stable,
+    otherwise those reached by settling from both sides of it along its growing mode (none when
+    neither side reaches one)."""
+    stability = assess_at(equations, x)
     if stability.stable:
-        return [x]
-    found = Search(Equations(system))
-    for start in _off_unstable([Point(x, stability)], system.n_nodes):
+        return stability, [x]
+    found = Search(equations)
+    for start in _off_unstable([Point(x, stability)], equations.nodes):
         _settle_from(found, start)
-    return [point.x for point in found.stable]
+    return stability, [point.x for point in found.stable]
 
 
 def _settle_from(found: Search, start: np.ndarray) -> None:

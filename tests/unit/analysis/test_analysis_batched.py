@@ -28,6 +28,7 @@ from checker.pipeline import load_designs, load_limit_files
 from checker.repo.config import load_config
 from checker.solver import Cache, solve_states
 from checker.solver.assembly import assemble
+from checker.solver.newton import Equations
 from checker.solver.states import assess_at, search
 
 EXAMPLE = Path(__file__).resolve().parents[3] / "examples" / "weather_station" / "nodegate.yaml"
@@ -122,7 +123,7 @@ def test_the_stability_screen_passes_only_stable_points():
     assert solved.ok.any()
     for block in np.flatnonzero(solved.ok):  # every sample the batch vouches for, judged by the solver itself
         moved = perturbed(point.netlist, {t.part: float(d) for t, d in zip(tolerances, deviations[block])})
-        assert assess_at(assemble(moved), solved.x[block]).stable
+        assert assess_at(Equations(assemble(moved)), solved.x[block]).stable
     # The balance point between the two drizzle states is unstable: the screen must not pass it.
     system = assemble(point.netlist)
     found = search(system, start_of(Tiled.of(point.netlist, tolerances, Cache(), 1), point))
