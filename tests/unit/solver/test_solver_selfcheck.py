@@ -5,6 +5,8 @@ exact 1-norm condition number of the equilibrated matrix, built here by hand."""
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import math
 
 import numpy as np
@@ -15,6 +17,8 @@ from checker.errors import NoSolutionError
 from checker.language import load_design
 from checker.solver import selfcheck, solve, solve_cases
 from checker.solver.assembly import assemble
+
+EXAMPLE = Path(__file__).resolve().parents[3] / "examples" / "weather_station"
 
 T25 = 298.15
 
@@ -88,8 +92,7 @@ def test_a_nonlinear_solution_corrupted_is_caught(monkeypatch):
 
 
 def test_every_case_of_the_example_passes_and_is_well_conditioned():
-    design = load_design("examples/weather_station/boards/mainboard/mainboard.circuit",
-                         root="examples/weather_station")
+    design = load_design(EXAMPLE / "boards" / "mainboard" / "mainboard.circuit", root=EXAMPLE)
     for point in solve_cases(design.netlists):
         assert point.self_check is not None and not point.self_check.ill_conditioned
         assert selfcheck.conditioning_warning(point) is None

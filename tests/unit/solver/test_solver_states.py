@@ -8,6 +8,8 @@ source cannot meet a load line twice); `stable_near` against the latch's states.
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 import scipy.sparse as sp
@@ -20,6 +22,8 @@ from checker.solver.stability import determinant_sign
 from checker.solver.states import MAX_RUNS, may_have_several, search
 from checker.solver.topology import Cache
 from test_solver_warm_start import LATCH  # a cross-coupled latch; its first case, `hold`, has two stable states
+
+EXAMPLE = Path(__file__).resolve().parents[3] / "examples" / "weather_station"
 
 
 def _netlist(text: str):
@@ -50,8 +54,7 @@ def test_feedback_decides_whether_to_search(text, several):
 
 
 def test_the_example_boards_main_board_is_not_searched():
-    design = load_design("examples/weather_station/boards/mainboard/mainboard.circuit",
-                         root="examples/weather_station")
+    design = load_design(EXAMPLE / "boards" / "mainboard" / "mainboard.circuit", root=EXAMPLE)
     assert not any(may_have_several(netlist) for netlist in design.netlists)
 
 
